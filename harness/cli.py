@@ -1,0 +1,191 @@
+"""The command line: ``boundbreaker <command> ...``.
+
+Exit codes: 0 pass, 1 violation found, 2 bad usage or bad input,
+3 inconclusive, 4 internal error (a bug in boundbreaker: please report it).
+Errors are one line on stderr; set ``BOUNDBREAKER_DEBUG=1`` for a traceback.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import sys
+
+from .errors import BoundbreakerError, ConfigError
+
+EXIT_PASS, EXIT_VIOLATION, EXIT_USAGE, EXIT_INCONCLUSIVE, EXIT_INTERNAL = 0, 1, 2, 3, 4
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse, but a usage error is one line naming the fix, exit 2."""
+
+    def error(self, message):
+        raise ConfigError(f"{self.prog}: {message} (see `{self.prog} --help`)")
+
+
+def parse_param(text: str, option: str) -> tuple[str, object]:
+    """``KEY=VALUE`` -> (key, value); VALUE is read as JSON when it parses
+    (numbers, true/false, lists), else kept as a string."""
+    key, sep, raw = text.partition("=")
+    if not sep or not key.strip():
+        raise ConfigError(f"{option} {text!r}: write KEY=VALUE, e.g. {option} eta=0.1")
+    try:
+        value = json.loads(raw)
+    except json.JSONDecodeError:
+        value = raw
+    return key.strip(), value
+
+
+def params_from(items, option: str) -> dict:
+    return dict(parse_param(item, option) for item in (items or []))
+
+
+def _add_run(sub):
+    p = sub.add_parser("run", help="play one learner against one adversary and summarise the tails")
+    p.add_argument("--learner", required=True, help="registry name or module:Class")
+    p.add_argument("--adversary", required=True, help="registry name or module:Class")
+    p.add_argument("--learner-param", action="append", metavar="KEY=VALUE", help="learner parameter (repeatable)")
+    p.add_argument("--adversary-param", action="append", metavar="KEY=VALUE",
+                   help="adversary parameter (repeatable), e.g. p=0.3")
+    p.add_argument("--horizon", type=int, required=True, help="rounds T")
+    p.add_argument("--actions", type=int, required=True, help="number of actions n")
+    p.add_argument("--replicas", type=int, default=1000)
+    p.add_argument("--seed", type=int, default=0)
+    p.add_argument("--jobs", type=int, default=1, help="parallel jobs (-1: all cores)")
+    p.add_argument("--switching-cost", type=float, default=0.0)
+    p.add_argument("--json", action="store_true", help="print JSON instead of a table")
+    p.set_defaults(handler=_cmd_run)
+
+
+def _cmd_run(args) -> int:
+    from . import run
+    from .learners import get as get_learner
+    import adversaries
+
+    for option, value in (("--horizon", args.horizon), ("--actions", args.actions),
+                          ("--replicas", args.replicas)):
+        if value < (2 if option == "--actions" else 1):
+            raise ConfigError(f"{option}: must be at least {2 if option == '--actions' else 1}, got {value}")
+    if args.seed < 0:
+        raise ConfigError(f"--seed: must be >= 0, got {args.seed}")
+    if not args.switching_cost >= 0 or args.switching_cost == float("inf"):
+        raise ConfigError(f"--switching-cost: must be a finite number >= 0, got {args.switching_cost}")
+    learner = _named(get_learner, args.learner, params_from(args.learner_param, "--learner-param"),
+                     "--learner", "--learner-param")
+    adversary = _named(adversaries.get, args.adversary,
+                       params_from(args.adversary_param, "--adversary-param"), "--adversary",
+                       "--adversary-param")
+    result = run(learner, adversary, args.horizon, args.actions, replicas=args.replicas, seed=args.seed,
+                 n_jobs=args.jobs, switching_cost=args.switching_cost, progress=True)
+    if args.json:
+        print(json.dumps({"summary": result.summary(), "meta": result.meta}, indent=2))
+    else:
+        print(format_run(result))
+    return EXIT_PASS
+
+
+def _named(getter, name, params, option, param_option):
+    """Build from a registry, naming the CLI option in the error."""
+    try:
+        return getter(name, **params)
+    except ConfigError as exc:
+        text = str(exc)
+        which = param_option if params and "unknown name" not in text else option
+        raise ConfigError(f"{which}: {text}") from None
+
+
+def format_run(result) -> str:
+    m = result.meta
+    seq = ("one sequence shared by all replicas" if m["shared_sequence"]
+           else "adaptive" if m["adaptive"] else "one sequence per replica")
+    head = [f"learner   {_spec_text(m['learner'])}",
+            f"adversary {_spec_text(m['adversary'])} ({seq})",
+            f"T={m['horizon']} n={m['n_actions']} replicas={m['replicas']} seed={m['seed']} "
+            f"wall={m['wall_time_s']:.2f}s"]
+    rows = [f"{'metric':<12}{'mean':>12}{'median':>12}{'p95':>12}{'p99':>12}{'max':>12}"]
+    for name, stats in result.summary().items():
+        rows.append(f"{name:<12}" + "".join(f"{stats[k]:>12.4g}" for k in ("mean", "median", "p95", "p99", "max")))
+    return "\n".join(head + [""] + rows)
+
+
+def _spec_text(spec: dict) -> str:
+    params = ", ".join(f"{k}={v}" for k, v in spec.get("params", {}).items())
+    return f"{spec.get('name') or spec.get('class')}({params})"
+
+
+def _add_list(sub):
+    p = sub.add_parser("list", help="list the registered learners and adversaries")
+    p.add_argument("what", nargs="?", choices=["learners", "adversaries"], help="only one registry")
+    p.set_defaults(handler=_cmd_list)
+
+
+def _cmd_list(args) -> int:
+    from .learners import describe as describe_learners
+    import adversaries
+
+    sections = [("learners", describe_learners()), ("adversaries", adversaries.describe())]
+    for title, rows in sections:
+        if args.what and args.what != title:
+            continue
+        print(f"{title}:")
+        for name, text, params in rows:
+            shown = ", ".join(f"{k}={v!r}" for k, v in params.items()) or "-"
+            print(f"  {name:<22}{text}\n  {'':<22}params: {shown}")
+        print()
+    return EXIT_PASS
+
+
+def _add_bench(sub):
+    p = sub.add_parser("bench", help="measure throughput (replica-rounds/s) and peak memory")
+    p.add_argument("--horizon", type=int, default=100_000)
+    p.add_argument("--replicas", type=int, default=1024)
+    p.add_argument("--actions", type=int, default=10)
+    p.add_argument("--learners", default=None, help="comma-separated names (default: all reference learners)")
+    p.add_argument("--quick", action="store_true", help="smaller sizes, for a smoke test")
+    p.add_argument("--json", action="store_true")
+    p.set_defaults(handler=_cmd_bench)
+
+
+def _cmd_bench(args) -> int:
+    from . import bench
+
+    report = bench.main(horizon=args.horizon, replicas=args.replicas, n_actions=args.actions,
+                        learners=args.learners.split(",") if args.learners else None, quick=args.quick)
+    print(json.dumps(report, indent=2) if args.json else bench.format_report(report))
+    return EXIT_PASS
+
+
+COMMANDS = [_add_run, _add_list, _add_bench]
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(prog="boundbreaker", description="Put online learners under adversarial stress.")
+    sub = parser.add_subparsers(dest="command", required=True, parser_class=_Parser)
+    for add in COMMANDS:
+        add(sub)
+    return parser
+
+
+def main(argv=None) -> int:
+    try:
+        args = build_parser().parse_args(argv)
+        return args.handler(args)
+    except BoundbreakerError as exc:
+        print(f"boundbreaker: error: {exc}", file=sys.stderr)
+        return EXIT_USAGE
+    except KeyboardInterrupt:
+        print("boundbreaker: interrupted", file=sys.stderr)
+        return 130
+    except SystemExit as exc:  # --help and friends
+        return exc.code if isinstance(exc.code, int) else 0
+    except Exception as exc:  # a bug of ours: one line, and the way to see more
+        if os.environ.get("BOUNDBREAKER_DEBUG"):
+            raise
+        print(f"boundbreaker: internal error: {type(exc).__name__}: {exc} "
+              f"(rerun with BOUNDBREAKER_DEBUG=1 for a traceback, and please report it)", file=sys.stderr)
+        return EXIT_INTERNAL
+
+
+if __name__ == "__main__":
+    sys.exit(main())
