@@ -7,12 +7,16 @@ A :class:`Claim` bounds one metric of a run (``regret``, ``switches`` or
 - ``"expectation"``: E[metric] <= bound (``delta`` unused);
 - ``"always"``: metric <= bound on every replica (a hard cap).
 
-``bound`` is a number or a function ``bound(horizon, n_actions, delta)``.
+``bound`` is a number, a function ``bound(horizon, n_actions, delta)``, or a
+small arithmetic expression in ``T``, ``n`` and ``delta`` such as
+``"sqrt(T * ln(n) / 2) + sqrt(T * ln(1 / delta) / 2)"`` (see :func:`expression`).
 """
 
 from __future__ import annotations
 
+import ast
 import math
+import operator
 from dataclasses import dataclass
 from typing import Callable, Union
 
@@ -25,6 +29,97 @@ METRICS = ("regret", "switches", "cost_regret")
 KINDS = ("high_probability", "expectation", "always")
 
 Bound = Union[float, Callable[[int, int, float], float]]
+
+
+_FUNCTIONS = {"sqrt": math.sqrt, "ln": math.log, "log": math.log, "log2": math.log2, "log10": math.log10,
+              "exp": math.exp, "min": min, "max": max, "ceil": math.ceil, "floor": math.floor, "abs": abs}
+_CONSTANTS = {"e": math.e, "pi": math.pi}
+_VARIABLES = ("T", "n", "delta")
+_BINARY = {ast.Add: operator.add, ast.Sub: operator.sub, ast.Mult: operator.mul, ast.Div: operator.truediv,
+           ast.Pow: operator.pow}
+_UNARY = {ast.UAdd: operator.pos, ast.USub: operator.neg}
+_MAX_LENGTH = 400
+
+
+class Expression:
+    """A bound written as arithmetic in T, n and delta, evaluated without eval/exec.
+
+    The text is parsed once with :mod:`ast`; only numbers, the variables
+    ``T``, ``n``, ``delta``, the constants ``e`` and ``pi``, the operators
+    ``+ - * / **`` and the functions sqrt, ln (= log), log2, log10, exp, min,
+    max, ceil, floor and abs are accepted. Anything else (attribute access,
+    subscripts, other names, lambdas, comprehensions) is refused when the
+    expression is built, with a one-line error naming the offending piece.
+    """
+
+    def __init__(self, text: str, field: str = "bound"):
+        if not isinstance(text, str) or not text.strip():
+            raise ConfigError(f"{field}: must be a number or an expression in T, n, delta; got {text!r}")
+        if len(text) > _MAX_LENGTH:
+            raise ConfigError(f"{field}: expression longer than {_MAX_LENGTH} characters")
+        self.expression = text.strip()
+        self.field = field
+        try:
+            tree = ast.parse(self.expression, mode="eval")
+        except SyntaxError:
+            raise ConfigError(f"{field}: {text!r} is not a valid expression; write e.g. "
+                              f"'2 * sqrt(T * ln(n))'") from None
+        self._check(tree.body)
+        self._tree = tree.body
+
+    def _check(self, node):
+        if isinstance(node, ast.Constant):
+            if isinstance(node.value, bool) or not isinstance(node.value, (int, float)):
+                raise ConfigError(f"{self.field}: only numbers may appear as constants, got {node.value!r}")
+        elif isinstance(node, ast.Name):
+            if node.id not in _VARIABLES and node.id not in _CONSTANTS:
+                raise ConfigError(f"{self.field}: unknown name {node.id!r}; use T, n, delta, e, pi")
+        elif isinstance(node, ast.BinOp) and type(node.op) in _BINARY:
+            self._check(node.left)
+            self._check(node.right)
+        elif isinstance(node, ast.UnaryOp) and type(node.op) in _UNARY:
+            self._check(node.operand)
+        elif isinstance(node, ast.Call) and isinstance(node.func, ast.Name) and node.func.id in _FUNCTIONS:
+            if node.keywords or not node.args:
+                raise ConfigError(f"{self.field}: call {node.func.id}() with positional arguments only")
+            for arg in node.args:
+                self._check(arg)
+        else:
+            piece = ast.unparse(node) if hasattr(ast, "unparse") else type(node).__name__
+            raise ConfigError(f"{self.field}: {piece!r} is not allowed; use numbers, T, n, delta, + - * / **, "
+                              f"and {', '.join(sorted(_FUNCTIONS))}")
+
+    def __call__(self, horizon, n_actions, delta):
+        env = {"T": float(horizon), "n": float(n_actions), "delta": float(delta), **_CONSTANTS}
+        return float(self._eval(self._tree, env))
+
+    def _eval(self, node, env):
+        if isinstance(node, ast.Constant):
+            return node.value
+        if isinstance(node, ast.Name):
+            return env[node.id]
+        if isinstance(node, ast.BinOp):
+            left, right = self._eval(node.left, env), self._eval(node.right, env)
+            if isinstance(node.op, ast.Pow) and abs(right) > 64:
+                raise ValueError("exponent larger than 64")
+            return _BINARY[type(node.op)](left, right)
+        if isinstance(node, ast.UnaryOp):
+            return _UNARY[type(node.op)](self._eval(node.operand, env))
+        return _FUNCTIONS[node.func.id](*(self._eval(a, env) for a in node.args))
+
+    def __repr__(self):
+        return f"Expression({self.expression!r})"
+
+    def __eq__(self, other):
+        return isinstance(other, Expression) and other.expression == self.expression
+
+    def __hash__(self):
+        return hash(self.expression)
+
+
+def expression(text: str, field: str = "bound") -> Expression:
+    """Parse a bound expression (see :class:`Expression`)."""
+    return Expression(text, field)
 
 
 @dataclass(frozen=True)
@@ -41,7 +136,9 @@ class Claim:
     def __post_init__(self):
         validate.choice("claim.metric", self.metric, METRICS)
         validate.choice("claim.kind", self.kind, KINDS)
-        if not callable(self.bound):
+        if isinstance(self.bound, str):
+            object.__setattr__(self, "bound", Expression(self.bound, "claim.bound"))
+        elif not callable(self.bound):
             object.__setattr__(self, "bound", validate.real("claim.bound", self.bound))
         if self.kind == "high_probability":
             validate.real("claim.delta", self.delta, low=0.0, high=1.0, low_open=True, high_open=True)

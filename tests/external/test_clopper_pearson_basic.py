@@ -1,0 +1,31 @@
+"""Clopper-Pearson bounds against scipy.stats.binomtest(...).proportion_ci(method="exact")."""
+
+import pytest
+from scipy import stats
+
+from harness.stats import clopper_pearson
+
+
+@pytest.mark.parametrize("k, n", [(0, 1), (0, 50), (3, 50), (25, 50), (50, 50), (7, 1000), (999, 1000)])
+@pytest.mark.parametrize("confidence", [0.9, 0.95, 0.999])
+def test_two_sided_matches_scipy(k, n, confidence):
+    ref = stats.binomtest(k, n).proportion_ci(confidence_level=confidence, method="exact")
+    got = clopper_pearson(k, n, confidence)
+    assert got.low == pytest.approx(ref.low, abs=1e-12) and got.high == pytest.approx(ref.high, abs=1e-12)
+
+
+@pytest.mark.parametrize("alternative", ["greater", "less"])
+def test_one_sided_matches_scipy(alternative):
+    for k, n in [(0, 30), (4, 30), (30, 30)]:
+        ref = stats.binomtest(k, n, alternative=alternative).proportion_ci(confidence_level=0.95, method="exact")
+        got = clopper_pearson(k, n, 0.95, alternative)
+        assert got.low == pytest.approx(ref.low, abs=1e-12) and got.high == pytest.approx(ref.high, abs=1e-12)
+
+
+def test_rule_of_three():
+    """Zero events in N trials: the one-sided 95% upper bound is 1 - 0.05**(1/N) exactly
+    (closed form), close to 3/N (Hanley and Lippman-Hand 1983): within 2% for N >= 100."""
+    for N in (100, 1000, 10_000):
+        high = clopper_pearson(0, N, 0.95, "less").high
+        assert high == pytest.approx(1 - 0.05 ** (1 / N), rel=1e-10)
+        assert high == pytest.approx(3 / N, rel=0.02)
