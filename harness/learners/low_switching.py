@@ -85,11 +85,13 @@ class LazyFTPL(_BlockCumulative):
         x_t(i) = L_{t-1}(i) + ((g(i) - L_{t-1}(i)) mod w).
 
     Each x_t is uniform on its cube, so every round's marginal is FPL's, and
-    the expected loss against an oblivious sequence equals FPL's. The point
-    moves only when some L(i) crosses a grid level, which in round t happens
-    with probability at most eps * l_t(i) per coordinate; and the leader
-    argmin_i x_t(i) changes only when *its own* coordinate moves (the others
-    only move up), so P[switch at t] <= eps E[l_t(a_t)] <= eps.
+    the expected loss against an oblivious sequence equals FPL's. A
+    coordinate moves (by +w) only when L(i) crosses a grid level, which in
+    round t happens with probability eps * l_t(i), so P[x_{t+1} != x_t] <=
+    eps |l_t|_1. The leader argmin_i x_t(i) changes only when *its own*
+    coordinate moves (the others only move up); conditioned on leading, that
+    coordinate sits low in its cube, so this is not eps * l_t(a_t) but the
+    union bound above is what holds.
 
     Default eps = sqrt(2 / (n T)). Claims (Kalai and Vempala 2005, Theorem
     1.1(a) with D = 2, R = 1, A = n for experts, and the FLL lemma

@@ -199,6 +199,7 @@ class EpochRestart(Learner):
         self._n, self._horizon, self._replicas, self._rng = n_actions, horizon, replicas, rng
         self._t = 0
         self.epochs = np.ones(replicas, dtype=np.int64)
+        self.restarts = []   # (round the new epoch starts, replicas restarting), in time order
         self._cohorts = [self._start(np.arange(replicas), horizon)]
 
     def _start(self, rows, remaining) -> _Cohort:
@@ -241,6 +242,7 @@ class EpochRestart(Learner):
             return None
         rows = np.sort(np.concatenate(ending))
         self.epochs[rows] += 1
+        self.restarts.append((t_next, rows))
         fresh = self._start(rows, self._horizon - t_next)
         self._cohorts.append(fresh)
         return fresh
