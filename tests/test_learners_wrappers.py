@@ -195,3 +195,13 @@ def test_cli_runs_a_wrapper_by_name(capsys):
     assert main(args + ["--learner", "budget-cap", "--learner-param", "inner=exp3"]) == 2
     err = capsys.readouterr().err.strip()
     assert "budget: required" in err and "\n" not in err
+
+
+def test_wrappers_give_the_same_results_with_parallel_jobs():
+    """The wrappers travel to worker processes (joblib) and replay bit for bit there."""
+    learner = get_learner("epoch-restart", inner="budget-cap", inner_params=dict(inner="exp3", budget=9),
+                          switches_per_epoch=4)
+    args = (learner, adversaries.get("bernoulli", p=0.4), 200, 3)
+    one = run(*args, replicas=300, seed=5, chunk=100)
+    two = run(*args, replicas=300, seed=5, chunk=100, n_jobs=2)
+    assert np.array_equal(one.regret, two.regret) and np.array_equal(one.switches, two.switches)
