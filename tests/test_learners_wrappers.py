@@ -158,9 +158,12 @@ def test_wrappers_by_registry_name_and_spec():
     again = get_learner(spec["name"], **spec["params"])
     res = [run(x, adversaries.get("bernoulli"), 100, 3, replicas=20, seed=1) for x in (cap, again)]
     assert np.array_equal(res[0].regret, res[1].regret)
-    restart = epoch_restart(get_learner("exp3"), 5)
-    assert restart.feedback == "bandit" and restart.spec()["params"]["inner"]["name"] == "exp3"
-    run(restart, adversaries.get("bernoulli"), 50, 3, replicas=8)
+    restart = epoch_restart(get_learner("exp3", gamma=0.3), 5)
+    spec = json.loads(json.dumps(restart.spec()))
+    assert restart.feedback == "bandit" and spec["params"]["inner"]["name"] == "exp3"
+    rebuilt = get_learner(spec["name"], **spec["params"])   # a recorded spec replays the same learner
+    res = [run(x, adversaries.get("bernoulli"), 50, 3, replicas=8, seed=2) for x in (restart, rebuilt)]
+    assert np.array_equal(res[0].switches, res[1].switches) and rebuilt.spec() == restart.spec()
 
 
 @pytest.mark.parametrize("name, params, field", [
@@ -172,6 +175,7 @@ def test_wrappers_by_registry_name_and_spec():
     ("budget-cap", dict(inner="hedge", budget=3, inner_params=[1]), "inner_params"),
     ("budget-cap", dict(inner="hedge", budget=3, inner_params={"etaa": 1}), "etaa"),
     ("budget-cap", dict(inner=object(), budget=3), "inner"),
+    ("budget-cap", dict(inner={"params": {}}, budget=3), "inner"),
     ("epoch-restart", dict(inner="hedge"), "switches_per_epoch"),
     ("blocked-hedge", {}, "budget"),
     ("blocked-exp3", dict(budget=-1), "budget"),

@@ -419,9 +419,7 @@ class BlockedHedge(_BlockCumulative):
         super().reset(n_actions, horizon, replicas, rng)
         self._block = block_length(horizon, self.budget)
         blocks = -(-horizon // self._block)
-        eta = self.eta if self.eta is not None else default_hedge_eta(n_actions, max(blocks, 1))
-        if not math.isfinite(eta) or eta == 0.0:   # one block: nothing to learn
-            eta = 1.0
+        eta = self.eta if self.eta is not None else default_hedge_eta(n_actions, blocks)
         self._rate = eta / self._block
         self._t = 0
         self._cur = np.zeros(replicas, dtype=np.int64)

@@ -4,7 +4,8 @@
 switches_per_epoch)`` wrap a learner object; the registry entries
 ``budget-cap`` and ``epoch-restart`` build the same from names, e.g.
 ``get("budget-cap", inner="hedge", inner_params={"eta": 0.1}, budget=10)``,
-where ``inner`` is a registry name or ``module:Class``. Both work under full
+where ``inner`` is a registry name or ``module:Class`` (or a learner's
+``spec()`` dict, so a recorded spec rebuilds the wrapper). Both work under full
 and bandit feedback and keep their state per replica.
 """
 
@@ -34,6 +35,13 @@ def _inner_learner(inner, inner_params, field: str = "inner") -> Learner:
         raise ConfigError(f"{field}_params: must be a table of parameters, got {type(inner_params).__name__}")
     if isinstance(inner, str):
         return REGISTRY.get(inner, **(inner_params or {}))
+    if isinstance(inner, dict):  # a recorded spec(), as results and certificates store it
+        if inner_params:
+            raise ConfigError(f"{field}_params: give parameters inside the {field} spec's 'params'")
+        name = inner.get("name") or inner.get("class")
+        if not isinstance(name, str) or not isinstance(inner.get("params", {}), dict):
+            raise ConfigError(f"{field}: a spec needs 'name' (or 'class') and a 'params' table, got {inner!r}"[:200])
+        return REGISTRY.get(name, **inner.get("params", {}))
     if inner_params:
         raise ConfigError(f"{field}_params: only with {field} given by name; pass parameters to the object instead")
     for attr in ("reset", "act", "update", "play_block"):
