@@ -100,13 +100,17 @@ class SegmentSchedule:
         return out, starts
 
 
-def other_label(n: int):
+class OtherLabel:
     """A label map: uniform over the n labels at the first segment, else uniform over the n-1 others."""
-    def draw(old, u):
+
+    def __init__(self, n: int):
+        self.n = n
+
+    def __call__(self, old, u):
+        n = self.n
         fresh = np.minimum((u * n).astype(np.int64), n - 1)
         step = 1 + np.minimum((u * (n - 1)).astype(np.int64), n - 2)
         return np.where(old < 0, fresh, (old + step) % n)
-    return draw
 
 
 # -- i.i.d. ------------------------------------------------------------------------
@@ -268,14 +272,15 @@ class RegimeShift(RandomOblivious):
     def reset(self, n_actions, horizon, replicas, rng):
         super().reset(n_actions, horizon, replicas, rng)
         self._segments = SegmentSchedule(self._rows)
-        self._label = other_label(n_actions)
+        self._label = OtherLabel(n_actions)
+
+    def _length(self, u):
+        return pareto_length(u, self.scale, self.alpha, self._horizon + 1)
 
     def losses(self, t0, t1):
         steps = t1 - t0
         u = self._uniforms(steps, self._n + 2)
-        best, _ = self._segments.labels(
-            u[:, :, self._n], u[:, :, self._n + 1],
-            lambda v: pareto_length(v, self.scale, self.alpha, self._horizon + 1), self._label)
+        best, _ = self._segments.labels(u[:, :, self._n], u[:, :, self._n + 1], self._length, self._label)
         p = np.full((steps, self._rows, self._n), self.base)
         np.put_along_axis(p, best[:, :, None], self.base - self.gap, axis=2)
         return self._emit((u[:, :, :self._n] < p).astype(np.float64))
