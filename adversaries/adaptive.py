@@ -78,9 +78,11 @@ class TieKeeper(_Adaptive):
     With a the leader and b the runner-up of the cumulative losses (lowest
     index on ties) and c = L(b) - L(a) in [0, margin]: if the replica last
     played b and c + 1 <= margin, b takes loss 1; otherwise a (the leader)
-    takes it and b loses 0 -- so the gap never exceeds max(margin, 1), the
-    leader changes whenever the learner sits on it, and the learner pays 1
-    in every round it sits on a leader. Every other action loses 1 each
+    takes it and b loses 0 -- so the gap never exceeds max(margin, 1) and
+    the lead keeps changing hands. A learner that stays on the leader pays 1
+    every round; Follow the Leader pays 3 rounds in 4 at margin 1 (regret
+    T/4; T/2 at margin 1/2), and lazy learners whose perturbation sits
+    inside the margin switch with the lead. Every other action loses 1 each
     round, so it never catches up.
     """
 
