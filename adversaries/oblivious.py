@@ -100,6 +100,15 @@ class SegmentSchedule:
         return out, starts
 
 
+def gap_and_base(gap, base) -> tuple[float, float]:
+    """A gap in (0, 1] below a base mean in [0, 1], leaving the better mean base - gap >= 0."""
+    gap = validate.real("gap", gap, low=0.0, high=1.0, low_open=True)
+    base = validate.probability("base", base)
+    if base - gap < 0:
+        raise ConfigError(f"gap: base - gap must be >= 0 (base={base:g}), got {gap:g}; lower gap or raise base")
+    return gap, base
+
+
 class OtherLabel:
     """A label map: uniform over the n labels at the first segment, else uniform over the n-1 others."""
 
@@ -189,11 +198,7 @@ class StochasticGap(RandomOblivious):
 
     def __init__(self, gap=0.1, base=0.5, best=0, shared=False):
         super().__init__(shared)
-        self.gap = validate.real("gap", gap, low=0.0, high=1.0, low_open=True)
-        self.base = validate.probability("base", base)
-        if self.base - self.gap < 0:
-            raise ConfigError(f"gap: base - gap must be >= 0 (base={self.base:g}), got {self.gap:g}; "
-                              f"lower gap or raise base")
+        self.gap, self.base = gap_and_base(gap, base)
         self.best = validate.nonneg_int("best", best)
 
     def reset(self, n_actions, horizon, replicas, rng):
@@ -261,11 +266,7 @@ class RegimeShift(RandomOblivious):
 
     def __init__(self, gap=0.2, base=0.5, alpha=1.5, scale=50, shared=False):
         super().__init__(shared)
-        self.gap = validate.real("gap", gap, low=0.0, high=1.0, low_open=True)
-        self.base = validate.probability("base", base)
-        if self.base - self.gap < 0:
-            raise ConfigError(f"gap: base - gap must be >= 0 (base={self.base:g}), got {self.gap:g}; "
-                              f"lower gap or raise base")
+        self.gap, self.base = gap_and_base(gap, base)
         self.alpha = validate.positive_real("alpha", alpha)
         self.scale = validate.real("scale", scale, low=1.0)
 

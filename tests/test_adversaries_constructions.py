@@ -12,6 +12,8 @@ import adversaries
 from harness import Learner, run
 from harness.learners import get as get_learner
 
+from test_adversaries_properties import Uniform
+
 
 def _reset(adv, n, T, R, seed=0):
     adv.reset(n, T, R, np.random.default_rng(np.random.SeedSequence(seed)))
@@ -80,22 +82,7 @@ def test_full_information_finds_the_hidden_action_at_once_bandits_cannot():
     ftl = run(get_learner("ftl"), adv, T, n, replicas=50, seed=1)
     assert np.quantile(ftl.regret, 0.9) <= 2 * eps
 
-    class Coin(Learner):
-        feedback = "bandit"
-
-        def __init__(self):
-            pass
-
-        def reset(self, n_actions, horizon, replicas, rng):
-            self._n, self._r, self._rng = n_actions, replicas, rng
-
-        def act(self):
-            return self._rng.integers(0, self._n, self._r)
-
-        def update(self, actions, losses):
-            pass
-
-    coin = run(Coin(), adv, T, n, replicas=200, seed=1)
+    coin = run(Uniform("bandit"), adv, T, n, replicas=200, seed=1)
     se = coin.regret.std(ddof=1) / math.sqrt(200)
     assert abs(coin.regret.mean() - eps * T * (1 - 1 / n)) < 5 * se + 0.5
 

@@ -87,10 +87,10 @@ def _randomized(name, params):
 
 
 class Uniform(Learner):
-    """A learner playing a fresh uniform action each round (reveals nothing, follows nothing)."""
+    """Test subject: a fresh uniform action each round (reveals nothing, follows nothing)."""
 
-    def __init__(self):
-        pass
+    def __init__(self, feedback="full"):
+        self.feedback = feedback
 
     def reset(self, n_actions, horizon, replicas, rng):
         self._n, self._r, self._rng = n_actions, replicas, rng
