@@ -94,8 +94,12 @@ class LazyFTPL(_BlockCumulative):
     union bound above is what holds.
 
     Default eps = sqrt(2 / (n T)). Claims (Kalai and Vempala 2005, Theorem
-    1.1(a) with D = 2, R = 1, A = n for experts, and the FLL lemma
-    P[x_{t+1} != x_t] <= eps |l_t|_1; constants from memory):
+    1.1(a) with D = 2, R = 1, A = n for experts, and their FLL lemma
+    P[x_{t+1} != x_t] <= eps |l_t|_1; theorem numbering and constants from
+    memory, and both re-derived here: each coordinate's offset is uniform,
+    so it wraps with probability exactly eps l_t(i), and FPL differs from
+    "be the perturbed leader" (regret <= max perturbation <= 1/eps) with
+    probability <= eps |l_t|_1 <= eps n per round):
     E[regret] <= eps n T + 2 / eps (2 sqrt(2 n T) at the default) and
     E[switches] <= eps n T (sqrt(2 n T) at the default); both for oblivious
     sequences.

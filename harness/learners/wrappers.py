@@ -168,10 +168,10 @@ class EpochRestart(Learner):
     at least 1 - delta there are at most m = ceil(ln(1/delta) / ln(1/q))
     epochs and at most (k + 1) m - 1 switches: an expectation guarantee
     becomes a high-probability one, at the price of a factor ln(1/delta).
-    This is the restart-on-overflow argument used to turn expected switching
-    bounds into high-probability ones (e.g. by Altschuler and Talwar 2018
-    for limited switching, from memory); the statement here is derived in
-    this docstring. It is attached as a Claim for every expected-switches
+    This is the restart-on-overflow argument the literature on limited
+    switching uses to turn expected switching bounds into high-probability
+    ones (we could not check which paper states it first; from memory); the
+    statement and constants here are derived in this docstring. It is attached as a Claim for every expected-switches
     claim of the inner learner (assumes that claim holds, is nondecreasing in
     T, and the sequence is oblivious).
 
