@@ -13,7 +13,7 @@ import adversaries
 from harness import ConfigError, Learner, run
 from harness.bench import _SlowPath
 from harness.cli import main
-from harness.learners import budget_cap, epoch_restart, get as get_learner
+from harness.learners import REGISTRY, budget_cap, epoch_restart, get as get_learner, names as learner_names
 from harness.stats import clopper_pearson
 
 from helpers import Chase, Fixed, drive
@@ -209,3 +209,16 @@ def test_wrappers_give_the_same_results_with_parallel_jobs():
     one = run(*args, replicas=300, seed=5, chunk=100)
     two = run(*args, replicas=300, seed=5, chunk=100, n_jobs=2)
     assert np.array_equal(one.regret, two.regret) and np.array_equal(one.switches, two.switches)
+
+
+@pytest.mark.parametrize("name", learner_names())
+def test_every_registered_learner_runs_from_the_command_line(name, capsys):
+    """`boundbreaker run` builds each registry entry (with its example_params, passed as
+    --learner-param KEY=JSON) and plays it; the table names the learner."""
+    params = getattr(REGISTRY.cls(name), "example_params", {})
+    argv = ["run", "--learner", name, "--adversary", "bernoulli", "--horizon", "30", "--actions", "3",
+            "--replicas", "4"]
+    for key, value in params.items():
+        argv += ["--learner-param", f"{key}={json.dumps(value)}"]
+    assert main(argv) == 0
+    assert name in capsys.readouterr().out
