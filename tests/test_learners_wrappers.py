@@ -10,7 +10,7 @@ from hypothesis.extra import numpy as hnp
 from scipy import stats
 
 import adversaries
-from harness import ConfigError, Learner, run
+from harness import ConfigError, run
 from harness.bench import _SlowPath
 from harness.cli import main
 from harness.learners import REGISTRY, budget_cap, epoch_restart, get as get_learner, names as learner_names
@@ -70,20 +70,8 @@ def test_budget_cap_plays_the_inner_learner_until_the_cap():
 # -- epoch restarts ------------------------------------------------------------------------
 
 
-class Dice(Learner):
-    """Test subject: a fresh uniform action every round from its own generator."""
-
-    def __init__(self):
-        pass
-
-    def reset(self, n_actions, horizon, replicas, rng):
-        self._n, self._r, self._rng = n_actions, replicas, rng
-
-    def act(self):
-        return self._rng.integers(0, self._n, self._r)
-
-    def update(self, actions, losses):
-        pass
+# A fresh uniform action every round from its own generator (the adversary tests' subject).
+from test_adversaries_properties import Uniform as Dice  # noqa: E402
 
 
 def _epochs(wrapper, replicas, horizon):
