@@ -48,27 +48,50 @@ def test_lazy_leader_identical(rng, shared):
 
 @pytest.mark.parametrize("shared", [True, False])
 def test_dartboard_identical(rng, shared):
-    steps, replicas, n = 40, 64, 5
-    shape = (steps, replicas, n)
-    ratio = rng.random((steps, n) if shared else shape)
-    w = rng.random((steps, n) if shared else shape)
-    cdf = np.cumsum(w, axis=-1) / w.sum(axis=-1, keepdims=True)
-    if shared:
-        ratio = np.broadcast_to(ratio[:, None, :], shape)
-        cdf = np.broadcast_to(cdf[:, None, :], shape)
-    uk, ud = rng.random((steps, replicas)), rng.random((steps, replicas))
+    """Both backends draw the same uniforms in the same order and play the same actions."""
+    steps, replicas, n, beta = 80, 64, 5, 0.4
+    table = rng.random((steps, n) if shared else (steps, replicas, n))
+    name = "dartboard_shared" if shared else "dartboard_per_replica"
 
     def make():
         last = np.full(replicas, -1, dtype=np.int64)
-        last[::3] = 2
-        return ratio, cdf, uk, ud, last, np.zeros(replicas, dtype=np.int64)
+        last[::3] = 2  # some replicas start mid-game, holding action 2
+        state = (beta, np.random.default_rng(4), last, np.zeros(replicas), np.full(replicas, 0.7),
+                 np.zeros(replicas, dtype=np.int64))
+        if shared:
+            return (np.cumsum(table, axis=0) - table, *state)
+        return (table, np.zeros((replicas, n)), *state)
 
-    (a, ra), (b, rb) = _both("dartboard", make)
-    assert np.array_equal(a, b) and np.array_equal(ra[4], rb[4]) and np.array_equal(ra[5], rb[5])
-    # keep iff u_keep < ratio[previous action] (closed form of the rule)
-    prev = np.concatenate([ra[4][None] * 0 + make()[4][None], a[:-1]], axis=0)
-    kept = (prev >= 0) & (uk < np.take_along_axis(ratio, np.maximum(prev, 0)[:, :, None], 2)[:, :, 0])
-    assert np.all(a[kept] == prev[kept])
+    (a, ra), (b, rb) = _both(name, make)
+    assert np.array_equal(a, b)
+    for k in (-4, -3, -2, -1):  # last, mark, clock, redraws
+        np.testing.assert_allclose(ra[k], rb[k], rtol=1e-12)
+    # a change of action needs a redraw
+    assert np.all(ra[-1] >= (a[1:] != a[:-1]).sum(axis=0)) and ra[-1].sum() > 0
+
+
+def test_dartboard_clock_rule_on_a_designed_sequence():
+    """Closed form of the clock rule: every action loses 0.3 per round, so a replica that drew
+    clock c at round s redraws at round s + max(1, ceil(c / 0.3)) (its action's loss since
+    the draw reaches c); replayed by hand from the same uniforms."""
+    steps, replicas, n, beta = 40, 6, 3, 0.5
+    before = np.arange(steps)[:, None] * np.full((1, n), 0.3)
+    for backend in ("numba", "numpy"):
+        last, mark, clock = np.full(replicas, -1, dtype=np.int64), np.zeros(replicas), np.zeros(replicas)
+        redraws = np.zeros(replicas, dtype=np.int64)
+        kernels.implementation("dartboard_shared", backend)(before, beta, np.random.default_rng(9), last,
+                                                            mark, clock, redraws)
+        r = np.random.default_rng(9)   # replay: two uniforms per draw, replicas in order within a round
+        due = np.zeros(replicas, dtype=np.int64)
+        count = np.full(replicas, -1)
+        for t in range(steps):
+            for k in np.flatnonzero(due == t):
+                r.random()
+                c = -np.log1p(-r.random()) / beta
+                due[k] = t + max(1, int(np.ceil(c / 0.3 - 1e-9)))
+                count[k] += 1
+        assert np.array_equal(redraws, count), backend
+        assert count.sum() > replicas  # the design makes clocks run out
 
 
 @pytest.mark.parametrize("gain, block, mix, ix", [(True, 1, 0.1, 0.0), (False, 1, 0.0, 0.05), (True, 4, 0.2, 0.0)])

@@ -191,11 +191,20 @@ class ShrinkingDartboard(_BlockCumulative):
     with L* <= T, for oblivious sequences (derived here; Geulen et al. state
     the same order, O(sqrt(T ln n)) for both, from memory).
 
-    Fast path: ``kernels.dartboard``: per replica one comparison per round and
-    an inverse-CDF draw only on a redraw; the ratios and the CDF are shared
-    on a shared sequence. Both paths draw two uniforms per replica per round
-    (keep, redraw), so they consume randomness identically. ``redraws``
-    (replicas,) counts redraws after round 1, for tests.
+    Exponential clocks (how both paths play the keep rule): keeping a
+    through rounds s+1..t has probability prod_u (1 - eta)^{l_u(a)} =
+    exp(-beta (L_t(a) - L_s(a))). So at each draw the replica also draws
+    E ~ Exp(1) and keeps a exactly while beta (L_t(a) - L_s(a)) < E: the
+    same law of play as a fresh keep/redraw coin every round, but randomness
+    is drawn only at draws (two uniforms per draw: the action by inverse CDF,
+    then E = -ln(1 - v)). ``tests/test_learners_dartboard.py`` checks the
+    marginals and the redraw counts against the per-round construction.
+
+    Fast path: ``kernels.dartboard_shared`` / ``dartboard_per_replica``: per
+    replica one comparison per round, and the CDF of p_t only in rounds where
+    some replica redraws. The slow path draws the same uniforms in the same
+    order, so both give identical play. ``redraws`` (replicas,) counts
+    redraws after round 1, for tests.
     """
 
     def __init__(self, eta=None):
@@ -219,49 +228,31 @@ class ShrinkingDartboard(_BlockCumulative):
         self._eta = self.eta if self.eta is not None else default_dartboard_eta(n_actions, horizon)
         self._beta = -math.log1p(-self._eta)         # Hedge rate with the same weights
         self._last = np.full(replicas, -1, dtype=np.int64)
-        self._prev = np.zeros(n_actions)              # last round's losses, (n,) or (replicas, n)
+        self._mark = np.zeros(replicas)               # L(a) when a was drawn
+        self._clock = np.zeros(replicas)              # E / beta: the loss a may take before a redraw
         self.redraws = np.zeros(replicas, dtype=np.int64)
 
-    def _ratio(self, prev):
-        return np.exp(math.log1p(-self._eta) * prev)
-
     def act(self):
-        u = self._rng.random((2, self._replicas))
-        cdf = hedge_cdf(np.broadcast_to(self._cum, (self._replicas, self._n)), self._beta)
-        ratio = np.broadcast_to(self._ratio(self._prev), (self._replicas, self._n))
-        rows = np.arange(self._replicas)
-        keep = (self._last >= 0) & (u[0] < ratio[rows, np.maximum(self._last, 0)])
-        drawn = sample_each(cdf, u[1])
-        self.redraws += (~keep) & (self._last >= 0)
-        self._last = np.where(keep, self._last, drawn)
+        cum = np.broadcast_to(self._cum, (self._replicas, self._n))
+        held = cum[np.arange(self._replicas), np.maximum(self._last, 0)]
+        idx = np.flatnonzero((self._last < 0) | (held - self._mark >= self._clock))
+        if idx.size:
+            self.redraws[idx] += self._last[idx] >= 0
+            uv = self._rng.random((idx.size, 2))
+            drawn = sample_each(hedge_cdf(cum[idx], self._beta), uv[:, 0])
+            self._last[idx] = drawn
+            self._mark[idx] = cum[idx, drawn]
+            self._clock[idx] = -np.log1p(-uv[:, 1]) / self._beta
         return self._last.copy()
 
-    def update(self, actions, losses):
-        super().update(actions, losses)
-        self._prev = np.array(losses, dtype=float)
-
     def play_block(self, losses):
-        steps = losses.shape[0]
-        u = self._rng.random((steps, 2, self._replicas))
-        shape = (steps, self._replicas, self._n)
-        first = self._last < 0
-        if losses.ndim == 2 and self._cum.ndim == 1 and self._prev.ndim == 1:
-            prev = np.concatenate([self._prev[None], losses[:-1]], axis=0)
-            ratio = np.broadcast_to(self._ratio(prev)[:, None, :], shape)
-            before = self._before(losses)[:, 0, :]
-            cdf = np.broadcast_to(hedge_cdf(before, self._beta)[:, None, :], shape)
-            self._prev = np.array(losses[-1])
-        else:
-            full = losses if losses.ndim == 3 else np.broadcast_to(losses[:, None, :], shape)
-            prev = np.concatenate([np.broadcast_to(self._prev, (1, self._replicas, self._n)), full[:-1]], axis=0)
-            ratio = self._ratio(prev)
-            cdf = hedge_cdf(self._before(losses), self._beta)
-            self._prev = np.array(full[-1])
-        counted = np.zeros(self._replicas, dtype=np.int64)
-        out = kernels.dartboard(ratio, cdf, np.ascontiguousarray(u[:, 0]), np.ascontiguousarray(u[:, 1]),
-                                self._last, counted)
-        self.redraws += counted - first  # a replica's first draw is not a redraw
-        return out
+        state = (self._beta, self._rng, self._last, self._mark, self._clock, self.redraws)
+        if losses.ndim == 2 and self._cum.ndim == 1:
+            before, self._cum = cumulative_before(self._cum, losses)
+            return kernels.dartboard_shared(before, *state)
+        if losses.ndim == 2:
+            losses = np.broadcast_to(losses[:, None, :], (losses.shape[0], self._replicas, self._n))
+        return kernels.dartboard_per_replica(losses, self._per_replica(), *state)
 
 
 # -- random-walk perturbation ----------------------------------------------------------------
