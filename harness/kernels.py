@@ -216,6 +216,78 @@ def _np_bandit_weights(losses, w, u, cur, acc, pos, block, mix, rate, ix, gain) 
     return out
 
 
+def _np_cap_block(proposed, last, switches, budget) -> np.ndarray:
+    """Budget cap on a block of proposals (steps, replicas): play the proposal while
+    fewer than ``budget`` switches were made, then keep the last action played.
+    ``last`` and ``switches`` (capped at ``budget``) are updated in place."""
+    steps, replicas = proposed.shape
+    prev = np.concatenate([last[None], proposed[:-1]], axis=0)
+    count = switches[None] + np.cumsum((proposed != prev) & (prev >= 0), axis=0)
+    # count is nondecreasing, so the rounds still played as proposed form a prefix
+    index = np.where(count <= budget, np.arange(steps)[:, None], -1)
+    index = np.maximum.accumulate(index, axis=0)
+    cols = np.arange(replicas)
+    played = np.where(index >= 0, proposed[np.maximum(index, 0), cols], last[None]).astype(np.int64)
+    switches[:] = np.minimum(count[-1], budget)
+    last[:] = played[-1]
+    return played
+
+
+def _np_second_best(scores) -> tuple:
+    """(argmin, min over the other entries) per row; argmin ties go to the lowest index."""
+    a = np.argmin(scores, axis=1)
+    rest = scores.copy()
+    rest[np.arange(scores.shape[0]), a] = np.inf
+    return a, rest.min(axis=1)
+
+
+def _np_lazy_argmin(before, shift, leader, level) -> np.ndarray:
+    """argmin_j (before[t, r, j] - shift[r, j]) per round and replica, lazily.
+
+    ``before`` (steps, replicas, n) (a stride-0 broadcast when shared) is
+    nondecreasing in t, so every score only rises. ``level[r]`` holds the least
+    score of the other actions when the leader was last computed: while the
+    leader's own score stays below it, the leader is still the strict argmin
+    and nothing else is looked at (O(1)); otherwise the argmin and the new
+    level are recomputed (O(n)), ties to the lowest index as np.argmin. ``leader``
+    (-1: unknown) and ``level`` are updated in place."""
+    steps, replicas, n = before.shape
+    out = np.empty((steps, replicas), dtype=np.int64)
+    rows = np.arange(replicas)
+    for t in range(steps):
+        i = np.maximum(leader, 0)
+        idx = np.flatnonzero((leader < 0) | ~(before[t][rows, i] - shift[rows, i] < level))
+        if idx.size:
+            leader[idx], level[idx] = _np_second_best(before[t][idx] - shift[idx])
+        out[t] = leader
+    return out
+
+
+def _np_random_walk(before, z, scale, rng) -> np.ndarray:
+    """argmin_j (before[t, r, j] + z[r, j]) after z[r, j] += scale * N(0, 1), per round.
+
+    Normals are drawn from ``rng`` in (round, replica, action) order, as
+    rng.standard_normal((replicas, n)) each round; ``z`` is updated in place."""
+    steps, replicas, n = before.shape
+    out = np.empty((steps, replicas), dtype=np.int64)
+    for t in range(steps):
+        z += scale * rng.standard_normal((replicas, n))
+        out[t] = np.argmin(before[t] + z, axis=1)
+    return out
+
+
+def _np_perturbed_leader(losses, cum, eta, rng) -> np.ndarray:
+    """FTPL with fresh perturbations on per-replica sequences: argmin_j (cum[r, j] -
+    Z[r, j] / eta), Z drawn as rng.standard_exponential((replicas, n)) each round,
+    then cum += losses[t]. ``cum`` (replicas, n) is updated in place."""
+    steps, replicas, n = losses.shape
+    out = np.empty((steps, replicas), dtype=np.int64)
+    for t in range(steps):
+        out[t] = np.argmin(cum - rng.standard_exponential((replicas, n)) / eta, axis=1)
+        cum += losses[t]
+    return out
+
+
 # -- numba --------------------------------------------------------------------
 
 try:  # numba is a declared dependency, but the numpy path keeps working without it
@@ -456,6 +528,75 @@ if numba is not None:
         return out
 
 
+if numba is not None:
+    @_jit
+    def _nb_cap_block(proposed, last, switches, budget):
+        steps, replicas = proposed.shape
+        out = np.empty((steps, replicas), dtype=np.int64)
+        for t in range(steps):
+            for r in range(replicas):
+                b = last[r]
+                a = proposed[t, r]
+                if switches[r] >= budget:
+                    a = b
+                elif b >= 0 and a != b:
+                    switches[r] += 1
+                last[r] = a
+                out[t, r] = a
+        return out
+
+    @_jit
+    def _nb_lazy_argmin(before, shift, leader, level):
+        steps, replicas, n = before.shape
+        out = np.empty((steps, replicas), dtype=np.int64)
+        for t in range(steps):
+            for r in range(replicas):
+                i = leader[r]
+                if i < 0 or not (before[t, r, i] - shift[r, i] < level[r]):
+                    best, second, i = np.inf, np.inf, 0
+                    for j in range(n):
+                        x = before[t, r, j] - shift[r, j]
+                        if x < best:
+                            second, best, i = best, x, j
+                        elif x < second:
+                            second = x
+                    leader[r] = i
+                    level[r] = second
+                out[t, r] = i
+        return out
+
+    @_jit
+    def _nb_random_walk(before, z, scale, rng):
+        steps, replicas, n = before.shape
+        out = np.empty((steps, replicas), dtype=np.int64)
+        for t in range(steps):
+            for r in range(replicas):
+                best, a = np.inf, 0
+                for j in range(n):
+                    z[r, j] = z[r, j] + scale * rng.standard_normal()
+                    x = before[t, r, j] + z[r, j]
+                    if x < best:
+                        best, a = x, j
+                out[t, r] = a
+        return out
+
+    @_jit
+    def _nb_perturbed_leader(losses, cum, eta, rng):
+        steps, replicas, n = losses.shape
+        out = np.empty((steps, replicas), dtype=np.int64)
+        for t in range(steps):
+            for r in range(replicas):
+                best, a = np.inf, 0
+                for j in range(n):
+                    x = cum[r, j] - rng.standard_exponential() / eta
+                    if x < best:
+                        best, a = x, j
+                out[t, r] = a
+                for j in range(n):
+                    cum[r, j] += losses[t, r, j]
+        return out
+
+
 def _pick():
     wanted = os.environ.get("BOUNDBREAKER_KERNELS", "numba").strip().lower()
     return "numba" if (numba is not None and wanted != "numpy") else "numpy"
@@ -464,17 +605,14 @@ def _pick():
 BACKEND = _pick()
 """Which implementation is live: ``"numba"`` or ``"numpy"``."""
 
-_IMPLS = {"numpy": {"sample_rows": _np_sample_rows, "account_shared": _np_account_shared,
-                    "account_per_replica": _np_account_per_replica,
-                    "hedge_per_replica": _np_hedge_per_replica, "lazy_leader": _np_lazy_leader,
-                    "dartboard_shared": _np_dartboard_shared,
-                    "dartboard_per_replica": _np_dartboard_per_replica, "bandit_weights": _np_bandit_weights}}
+KERNELS = ("sample_rows", "account_shared", "account_per_replica", "hedge_per_replica", "lazy_leader",
+           "dartboard_shared", "dartboard_per_replica", "bandit_weights", "cap_block", "lazy_argmin",
+           "random_walk", "perturbed_leader")
+"""Every kernel, by name; ``_np_<name>`` is its numpy twin and ``_nb_<name>`` its compiled loop."""
+
+_IMPLS = {"numpy": {name: globals()["_np_" + name] for name in KERNELS}}
 if numba is not None:
-    _IMPLS["numba"] = {"sample_rows": _nb_sample_rows, "account_shared": _nb_account_shared,
-                       "account_per_replica": _nb_account_per_replica,
-                       "hedge_per_replica": _nb_hedge_per_replica, "lazy_leader": _nb_lazy_leader,
-                       "dartboard_shared": _nb_dartboard_shared,
-                       "dartboard_per_replica": _nb_dartboard_per_replica, "bandit_weights": _nb_bandit_weights}
+    _IMPLS["numba"] = {name: globals()["_nb_" + name] for name in KERNELS}
 
 
 def implementation(name: str, backend: str | None = None):
@@ -490,3 +628,7 @@ lazy_leader = implementation("lazy_leader")
 dartboard_shared = implementation("dartboard_shared")
 dartboard_per_replica = implementation("dartboard_per_replica")
 bandit_weights = implementation("bandit_weights")
+cap_block = implementation("cap_block")
+lazy_argmin = implementation("lazy_argmin")
+random_walk = implementation("random_walk")
+perturbed_leader = implementation("perturbed_leader")

@@ -254,7 +254,9 @@ class FTPL(_CumulativeLearner):
     shared sequence that distribution is computed once per round, exactly,
     and each replica draws one uniform instead of n exponentials. The slow
     path (``act``) draws the perturbations themselves; tests check that both
-    give the same distribution of play.
+    give the same distribution of play. On per-replica sequences the fast
+    path (``kernels.perturbed_leader``) draws the slow path's perturbations,
+    in the same order, in one compiled loop: identical play.
 
     Claim: Kalai and Vempala's bound for FPL* on experts, E[loss] <=
     (1 + eta) L* + (1 + ln n) / eta, with L* <= T gives E[regret] <=
@@ -288,4 +290,7 @@ class FTPL(_CumulativeLearner):
             cdf = np.cumsum(ftpl_probabilities(before, self._eta), axis=1)
             cdf /= cdf[:, -1:]
             return kernels.sample_rows(cdf, self._rng.random((losses.shape[0], self._replicas)))
-        return super().play_block(losses)
+        if losses.ndim == 2:
+            losses = np.broadcast_to(losses[:, None, :], (losses.shape[0], self._replicas, self._n))
+        # per-replica sequences: the slow path's draws, in the same order, in one compiled loop
+        return kernels.perturbed_leader(losses, self._per_replica(), self._eta, self._rng)

@@ -12,9 +12,10 @@
 
 Every fast path takes the cumulative losses of a block at once (shared by
 all replicas when the sequence is) and keeps per-replica work to what the
-method needs: O(1) per round for lazy-ftpl (amortised), shrinking-dartboard
-and blocked-hedge; O(n) for random-walk and mw-ftpl, whose perturbed scores
-all move every round.
+method needs: O(1) per round for lazy-ftpl and mw-ftpl (amortised: the
+argmin is recomputed only when the leader's own score passes a level),
+shrinking-dartboard and blocked-hedge; O(n) for random-walk, whose
+perturbed scores all move every round.
 
 Claims valid only against oblivious sequences say so in their name: the
 runner's certification also plays adaptive adversaries, against which a
@@ -34,9 +35,6 @@ from . import REGISTRY
 from .experts import (_CumulativeLearner, cumulative_before, default_hedge_eta, hedge_cdf, hedge_claims,
                       sample_each)
 
-# Entries of a (steps, replicas, n) scratch array built at once by the O(n) fast paths.
-SCRATCH_ENTRIES = 1 << 20
-
 
 class _BlockCumulative(_CumulativeLearner):
     """Adds the cumulative losses before each round of a block, as (steps, replicas, n)."""
@@ -54,12 +52,6 @@ class _BlockCumulative(_CumulativeLearner):
         cums = np.cumsum(np.concatenate([cum[None], losses], axis=0), axis=0)
         cum[:] = cums[-1]
         return cums[:-1]
-
-
-def _sub_blocks(steps: int, per_step: int):
-    size = max(1, SCRATCH_ENTRIES // max(1, per_step))
-    for lo in range(0, steps, size):
-        yield lo, min(steps, lo + size)
 
 
 # -- Follow the Lazy Leader -----------------------------------------------------------
@@ -275,10 +267,11 @@ class RandomWalkPerturbation(_BlockCumulative):
     exact step law of the analysis (Gaussian or +-1/2 steps) could not be
     checked, so no Claim is attached.
 
-    Fast path: the walks and the argmin for a block at once (numpy, O(n) per
-    replica per round: every perturbed score moves every round). Both paths
-    draw n normals per replica per round in time-major order and add them in
-    the same order, so they give identical play from the same generator.
+    Fast path: ``kernels.random_walk``, the walks and the argmin in one
+    compiled loop (O(n) per replica per round: every perturbed score moves
+    every round). Both paths draw n normals per replica per round in
+    time-major order and add them in the same order, so they give identical
+    play from the same generator.
     """
 
     def __init__(self, scale=1.0):
@@ -293,14 +286,7 @@ class RandomWalkPerturbation(_BlockCumulative):
         return np.argmin(self._cum + self._z, axis=1).astype(np.int64)
 
     def play_block(self, losses):
-        before = self._before(losses)
-        out = np.empty(before.shape[:2], dtype=np.int64)
-        for lo, hi in _sub_blocks(before.shape[0], self._replicas * self._n):
-            steps = self.scale * self._rng.standard_normal((hi - lo, self._replicas, self._n))
-            walk = np.cumsum(np.concatenate([self._z[None], steps], axis=0), axis=0)[1:]
-            out[lo:hi] = np.argmin(before[lo:hi] + walk, axis=2)
-            self._z = walk[-1]
-        return out
+        return kernels.random_walk(self._before(losses), self._z, self.scale, self._rng)
 
 
 # -- multiplicative-weights FTPL -------------------------------------------------------------
@@ -324,8 +310,11 @@ class GumbelFTPL(_BlockCumulative):
     only, and Hedge's high-probability claim (which needs fresh draws each
     round) is not made.
 
-    Fast path: scores for a block at once (O(n) per replica per round, numpy);
-    identical play to the slow path.
+    Fast path: ``kernels.lazy_argmin``. Every score L(i) - G(i)/eta only
+    rises, so while the leader's score stays below the least other score
+    seen when it was last computed it is still the argmin: per replica O(1)
+    per round, O(n) only when the leader's score passes that level.
+    Identical play to the slow path.
     """
 
     def __init__(self, eta=None):
@@ -341,16 +330,16 @@ class GumbelFTPL(_BlockCumulative):
         super().reset(n_actions, horizon, replicas, rng)
         eta = self.eta if self.eta is not None else default_hedge_eta(n_actions, horizon)
         self._shift = rng.gumbel(size=(replicas, n_actions)) / eta
+        # the fast path's cached leader and a lower bound on the other scores; scores only
+        # rise, so the bound stays valid across slow-path rounds too
+        self._leader = np.full(replicas, -1, dtype=np.int64)
+        self._level = np.zeros(replicas)
 
     def act(self):
         return np.argmin(self._cum - self._shift, axis=1).astype(np.int64)
 
     def play_block(self, losses):
-        before = self._before(losses)
-        out = np.empty(before.shape[:2], dtype=np.int64)
-        for lo, hi in _sub_blocks(before.shape[0], self._replicas * self._n):
-            out[lo:hi] = np.argmin(before[lo:hi] - self._shift, axis=2)
-        return out
+        return kernels.lazy_argmin(self._before(losses), self._shift, self._leader, self._level)
 
 
 # -- blocked Hedge -----------------------------------------------------------------------------

@@ -18,7 +18,7 @@ from typing import Callable
 
 import numpy as np
 
-from .. import validate
+from .. import kernels, validate
 from ..claims import Claim
 from ..errors import ConfigError
 from ..protocol import Learner
@@ -115,18 +115,8 @@ class BudgetCap(Learner):
         self._live.update(self._proposed, losses)
 
     def play_block(self, losses):
-        proposed = np.asarray(self._live.play_block(losses))
-        steps, replicas = proposed.shape
-        prev = np.concatenate([self._last[None], proposed[:-1]], axis=0)
-        count = self.switches[None] + np.cumsum((proposed != prev) & (prev >= 0), axis=0)
-        # count is nondecreasing, so the rounds still played as proposed form a prefix
-        index = np.where(count <= self.budget, np.arange(steps)[:, None], -1)
-        index = np.maximum.accumulate(index, axis=0)
-        cols = np.arange(replicas)
-        played = np.where(index >= 0, proposed[np.maximum(index, 0), cols], self._last[None])
-        self.switches = np.minimum(count[-1], self.budget)
-        self._last = played[-1].astype(np.int64)
-        return played.astype(np.int64)
+        proposed = np.asarray(self._live.play_block(losses)).astype(np.int64, copy=False)
+        return kernels.cap_block(proposed, self._last, self.switches, self.budget)
 
 
 def budget_cap(learner, budget) -> BudgetCap:
