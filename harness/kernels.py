@@ -174,46 +174,62 @@ def _np_dartboard_per_replica(losses, cum, beta, rng, last, mark, clock, redraws
     return out
 
 
-def _np_bandit_weights(losses, w, u, cur, acc, pos, block, mix, rate, ix, gain) -> np.ndarray:
+def _np_bandit_weights(losses, w, u, cur, p_cur, acc, pos, block, mix, rate, ix, gain) -> np.ndarray:
     """Exponential weights with bandit feedback: EXP3, EXP3-IX and their blocked forms.
 
     ``losses`` (steps, replicas, n), read only at each replica's own action.
-    ``w`` (replicas, n) the weights; ``pos`` a one-element array, the
-    position in the current block of ``block`` rounds (shared by all
+    ``w`` (n, replicas) the weights, one column per replica (so the compiled
+    loop runs across replicas in vector lanes); ``pos`` a one-element array,
+    the position in the current block of ``block`` rounds (shared by all
     replicas). At a block start replica r draws its action from
-    p = (1 - mix) w / W + mix / n with one uniform; every round it adds its
-    own loss to ``acc``; at a block end y = acc / block and the played
+    p = (1 - mix) w / W + mix / n with one uniform (inverse CDF, the CDF
+    summed in action order; ``u`` holds one row of uniforms per block start
+    in the call, in order) and keeps p_a in ``p_cur``; every round it adds
+    its own loss to ``acc``; at a block end y = acc / block and the played
     action's weight is multiplied by exp(rate (1 - y) / (p_a + ix)) when
     ``gain`` (EXP3's reward form) else exp(-rate y / (p_a + ix)) (EXP3-IX).
-    A row is rescaled by its total when that leaves [1e-100, 1e100], which
-    leaves p unchanged. Sums run sequentially (the compiled loop's order)."""
+    A column is rescaled by its total when that leaves [1e-100, 1e100],
+    which leaves p unchanged. Sums run in action order, as the compiled loop's."""
     steps, replicas, n = losses.shape
     out = np.empty((steps, replicas), dtype=np.int64)
     rows = np.arange(replicas)
+    m = mix / n
+    k = 0
     for t in range(steps):
         if pos[0] == 0:
-            W = np.add.accumulate(w, axis=1)[:, -1]
-            c = np.add.accumulate((1.0 - mix) * w / W[:, None] + mix / n, axis=1)
-            cur[:] = (c[:, :-1] <= u[t][:, None]).sum(axis=1)
+            scale = (1.0 - mix) / _np_column_totals(w)
+            c = np.zeros(replicas)
+            count = np.zeros(replicas, dtype=np.int64)
+            for j in range(n - 1):
+                c += w[j] * scale + m
+                count += c <= u[k]
+            k += 1
+            cur[:] = count
+            p_cur[:] = w[cur, rows] * scale + m
             acc[:] = 0.0
         out[t] = cur
         acc += losses[t][rows, cur]
         if pos[0] == block - 1:
-            W = np.add.accumulate(w, axis=1)[:, -1]
-            p = (1.0 - mix) * w[rows, cur] / W + mix / n
             y = acc / block
             if gain:
-                w[rows, cur] = w[rows, cur] * np.exp(rate * ((1.0 - y) / (p + ix)))
+                w[cur, rows] = w[cur, rows] * np.exp(rate * ((1.0 - y) / (p_cur + ix)))
             else:
-                w[rows, cur] = w[rows, cur] * np.exp(-rate * (y / (p + ix)))
-            W = np.add.accumulate(w, axis=1)[:, -1]
+                w[cur, rows] = w[cur, rows] * np.exp(-rate * (y / (p_cur + ix)))
+            W = _np_column_totals(w)
             bad = np.flatnonzero((W < 1e-100) | (W > 1e100))
             if bad.size:
-                w[bad] = w[bad] / W[bad, None]
+                w[:, bad] = w[:, bad] / W[bad]
             pos[0] = 0
         else:
             pos[0] += 1
     return out
+
+
+def _np_column_totals(w) -> np.ndarray:
+    total = np.zeros(w.shape[1])
+    for j in range(w.shape[0]):  # in action order, as the compiled loop adds
+        total += w[j]
+    return total
 
 
 def _np_cap_block(proposed, last, switches, budget) -> np.ndarray:
@@ -484,51 +500,63 @@ if numba is not None:
         return out
 
     @_jit
-    def _nb_bandit_weights(losses, w, u, cur, acc, pos, block, mix, rate, ix, gain):
+    def _nb_bandit_weights(losses, w, u, cur, p_cur, acc, pos, block, mix, rate, ix, gain):
         steps, replicas, n = losses.shape
         out = np.empty((steps, replicas), dtype=np.int64)
+        m = mix / n
+        scale = np.empty(replicas)
+        c = np.empty(replicas)
+        count = np.empty(replicas, dtype=np.int32)
+        k = 0
         for t in range(steps):
-            start = pos[0] == 0
-            end = pos[0] == block - 1
-            for r in range(replicas):
-                if start:
-                    W = 0.0
-                    for j in range(n):
-                        W += w[r, j]
-                    c = 0.0
-                    a = 0
-                    for j in range(n - 1):
-                        c += (1.0 - mix) * w[r, j] / W + mix / n
-                        a += c <= u[t, r]
+            if pos[0] == 0:
+                # loops over replicas innermost: each replica's sums keep their
+                # order, and independent replicas fill the vector lanes
+                for r in range(replicas):
+                    scale[r] = 0.0
+                for j in range(n):
+                    for r in range(replicas):
+                        scale[r] += w[j, r]
+                for r in range(replicas):
+                    scale[r] = (1.0 - mix) / scale[r]
+                    c[r] = 0.0
+                    count[r] = 0
+                for j in range(n - 1):
+                    for r in range(replicas):
+                        c[r] += w[j, r] * scale[r] + m
+                        count[r] += np.int32(c[r] <= u[k, r])
+                k += 1
+                for r in range(replicas):
+                    a = count[r]
                     cur[r] = a
+                    p_cur[r] = w[a, r] * scale[r] + m
                     acc[r] = 0.0
+            for r in range(replicas):
                 a = cur[r]
                 out[t, r] = a
                 acc[r] += losses[t, r, a]
-                if end:
-                    W = 0.0
-                    for j in range(n):
-                        W += w[r, j]
-                    p = (1.0 - mix) * w[r, a] / W + mix / n
+            if pos[0] == block - 1:
+                for r in range(replicas):
+                    a = cur[r]
                     y = acc[r] / block
                     if gain:
-                        w[r, a] = w[r, a] * np.exp(rate * ((1.0 - y) / (p + ix)))
+                        w[a, r] = w[a, r] * np.exp(rate * ((1.0 - y) / (p_cur[r] + ix)))
                     else:
-                        w[r, a] = w[r, a] * np.exp(-rate * (y / (p + ix)))
-                    W = 0.0
-                    for j in range(n):
-                        W += w[r, j]
-                    if W < 1e-100 or W > 1e100:
+                        w[a, r] = w[a, r] * np.exp(-rate * (y / (p_cur[r] + ix)))
+                for r in range(replicas):
+                    c[r] = 0.0
+                for j in range(n):
+                    for r in range(replicas):
+                        c[r] += w[j, r]
+                for r in range(replicas):
+                    if c[r] < 1e-100 or c[r] > 1e100:
                         for j in range(n):
-                            w[r, j] = w[r, j] / W
-            if end:
+                            w[j, r] = w[j, r] / c[r]
                 pos[0] = 0
             else:
                 pos[0] += 1
         return out
 
-
-if numba is not None:
     @_jit
     def _nb_cap_block(proposed, last, switches, budget):
         steps, replicas = proposed.shape

@@ -98,21 +98,32 @@ def test_dartboard_clock_rule_on_a_designed_sequence():
 def test_bandit_weights_identical(rng, gain, block, mix, ix):
     steps, replicas, n = 57, 40, 7
     losses = rng.random((steps, replicas, n))
-    u = rng.random((steps, replicas))
+    u = rng.random((-(-steps // block), replicas))  # one row per block start
 
     def make():
-        return (losses, np.ones((replicas, n)), u, np.zeros(replicas, dtype=np.int64), np.zeros(replicas),
-                np.array([0], dtype=np.int64), block, mix, 0.3, ix, gain)
+        return (losses, np.ones((n, replicas)), u, np.zeros(replicas, dtype=np.int64), np.zeros(replicas),
+                np.zeros(replicas), np.array([0], dtype=np.int64), block, mix, 0.3, ix, gain)
 
     (a, ra), (b, rb) = _both("bandit_weights", make)
     # exp may differ in the last bit between libm and numpy's SIMD loop; a draw exactly on
     # a boundary could then differ, with probability ~1e-13 per draw.
     assert np.array_equal(a, b)
     np.testing.assert_allclose(ra[1], rb[1], rtol=1e-12)
-    assert ra[5][0] == rb[5][0] == steps % block
-    assert np.all(a.reshape(-1, block, replicas)[:, 1:] == a.reshape(-1, block, replicas)[:, :1]) \
-        if steps % block == 0 else np.all(a[:block * (steps // block)].reshape(-1, block, replicas)[:, 1:]
-                                          == a[:block * (steps // block)].reshape(-1, block, replicas)[:, :1])
+    np.testing.assert_allclose(ra[4], rb[4], rtol=1e-12)
+    assert ra[6][0] == rb[6][0] == steps % block
+    full = a[:block * (steps // block)].reshape(-1, block, replicas)
+    assert np.all(full[:, 1:] == full[:, :1])  # one action per block
+    # p_cur is the drawn action's probability (1 - mix) w / W + mix / n, from the weights at
+    # the last block start: redo the last update backwards from the final weights
+    if steps % block == 0:
+        w = rb[1].copy()
+        last = a[-1]
+        y = losses[steps - block:, np.arange(replicas), :][np.arange(block)[:, None], np.arange(replicas),
+                                                             last].sum(axis=0) / block
+        factor = np.exp(0.3 * (1 - y) / (rb[4] + ix)) if gain else np.exp(-0.3 * y / (rb[4] + ix))
+        w[last, np.arange(replicas)] /= factor
+        p = (1 - mix) * w / w.sum(axis=0) + mix / n
+        np.testing.assert_allclose(rb[4], p[last, np.arange(replicas)], rtol=1e-9)
 
 
 def test_bandit_weights_reads_only_the_played_loss(rng):
@@ -120,8 +131,9 @@ def test_bandit_weights_reads_only_the_played_loss(rng):
     steps, replicas, n = 30, 20, 5
     losses = rng.random((steps, replicas, n))
     u = rng.random((steps, replicas))
-    args = lambda table: (table, np.ones((replicas, n)), u, np.zeros(replicas, dtype=np.int64),  # noqa: E731
-                          np.zeros(replicas), np.array([0], dtype=np.int64), 1, 0.1, 0.2, 0.0, True)
+    args = lambda table: (table, np.ones((n, replicas)), u, np.zeros(replicas, dtype=np.int64),  # noqa: E731
+                          np.zeros(replicas), np.zeros(replicas), np.array([0], dtype=np.int64), 1, 0.1, 0.2,
+                          0.0, True)
     for backend in ("numba", "numpy"):
         first = args(losses)
         a = kernels.implementation("bandit_weights", backend)(*first)

@@ -62,7 +62,7 @@ class _ExpWeightsBandit(Learner):
         self._configure(n_actions, horizon)
         self._t = 0
         self._logw = np.zeros((replicas, n_actions))      # slow path state
-        self._w = np.ones((replicas, n_actions))          # fast path state
+        self._w = np.ones((n_actions, replicas))          # fast path state: one column per replica
         self._cur = np.zeros(replicas, dtype=np.int64)
         self._acc = np.zeros(replicas)
         self._p_cur = np.ones(replicas)
@@ -72,10 +72,10 @@ class _ExpWeightsBandit(Learner):
         # The paths keep the weights differently (log-weights / rescaled
         # weights); convert when a caller switches between them.
         if self._mode == "slow" and mode == "fast":
-            self._w = np.exp(self._logw - self._logw.max(axis=1, keepdims=True))
+            self._w = np.ascontiguousarray(np.exp(self._logw - self._logw.max(axis=1, keepdims=True)).T)
         elif self._mode == "fast" and mode == "slow":
             with np.errstate(divide="ignore"):
-                self._logw = np.log(self._w)
+                self._logw = np.log(self._w.T)
             self._p_cur = self._probabilities()[np.arange(self._replicas), self._cur]
         self._mode = mode
 
@@ -115,11 +115,10 @@ class _ExpWeightsBandit(Learner):
         shape = (steps, self._replicas, self._n)
         if losses.ndim == 2:
             losses = np.broadcast_to(losses[:, None, :], shape)
-        starts = np.flatnonzero((self._t + np.arange(steps)) % self._block == 0)
-        u = np.zeros((steps, self._replicas))
-        u[starts] = self._rng.random((starts.size, self._replicas))  # the slow path's draws, same rounds
+        starts = np.count_nonzero((self._t + np.arange(steps)) % self._block == 0)
+        u = self._rng.random((starts, self._replicas))  # the slow path's draws, one row per block start
         pos = np.array([self._t % self._block], dtype=np.int64)
-        out = kernels.bandit_weights(losses, self._w, u, self._cur, self._acc, pos, self._block,
+        out = kernels.bandit_weights(losses, self._w, u, self._cur, self._p_cur, self._acc, pos, self._block,
                                      self._mix, self._rate, self._ix, self._gain)
         self._t += steps
         return out
