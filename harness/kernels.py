@@ -119,59 +119,66 @@ def _np_hedge_row_cdf(row, beta):
     return c / c[..., -1:]
 
 
-def _np_dartboard_shared(before, beta, rng, last, mark, clock, redraws) -> np.ndarray:
+def _np_dartboard_shared(before, t0, out, beta, buf, pos, last, mark, clock, redraws) -> int:
     """Shrinking Dartboard on a shared sequence, with exponential clocks.
 
     ``before`` (steps, n): cumulative losses before each round. Replica r
     holds action ``last[r]`` (-1: no draw yet), drawn when that action's
     cumulative loss was ``mark[r]``; it keeps it while the loss the action
     has taken since stays below ``clock[r]`` = E / beta, E ~ Exp(1). When the
-    clock runs out it redraws: two uniforms (u, v) from ``rng``, replicas in
-    increasing order, a = inverse CDF of exp(-beta L) at u, clock
-    -log1p(-v) / beta. Keeping through rounds s..t then has probability
-    exp(-beta (L_t(a) - L_s(a))) = prod (1 - eta)^{l(a)}: the per-round keep
-    rule of the construction (see learners.low_switching.ShrinkingDartboard).
-    ``last``, ``mark``, ``clock`` and ``redraws`` (redraws after the first
-    draw) are updated in place."""
+    clock runs out it redraws with the next two uniforms (u, v) of the
+    buffer ``buf`` (read from ``pos[0]`` on; replicas in increasing order):
+    a = inverse CDF of exp(-beta L) at u, clock -log1p(-v) / beta. Keeping
+    through rounds s..t then has probability exp(-beta (L_t(a) - L_s(a))) =
+    prod (1 - eta)^{l(a)}: the per-round keep rule of the construction (see
+    learners.low_switching.ShrinkingDartboard).
+
+    Plays rounds t0, t0+1, ... into ``out`` (steps, replicas) and stops
+    before a round when fewer than 2 * replicas uniforms are left in the
+    buffer; returns the round it stopped at (``steps`` when done), so the
+    caller can refill (``UniformStream``) and resume. ``last``, ``mark``,
+    ``clock``, ``redraws`` (redraws after the first draw) and ``pos`` are
+    updated in place."""
     steps = before.shape[0]
     replicas = last.shape[0]
-    out = np.empty((steps, replicas), dtype=np.int64)
-    for t in range(steps):
+    for t in range(t0, steps):
+        if buf.shape[0] - pos[0] < 2 * replicas:
+            return t
         row = before[t]
-        expired = (last < 0) | (row[np.maximum(last, 0)] - mark >= clock)
-        idx = np.flatnonzero(expired)
+        idx = np.flatnonzero((last < 0) | (row[np.maximum(last, 0)] - mark >= clock))
         if idx.size:
-            redraws[idx] += last[idx] >= 0
-            uv = rng.random((idx.size, 2))
-            cdf = _np_hedge_row_cdf(row, beta)
-            a = (cdf[None, :-1] <= uv[:, :1]).sum(axis=1)
-            last[idx] = a
-            mark[idx] = row[a]
-            clock[idx] = -np.log1p(-uv[:, 1]) / beta
+            _np_redraw(idx, np.broadcast_to(row, (idx.size, row.shape[0])), beta, buf, pos, last, mark, clock,
+                       redraws)
         out[t] = last
-    return out
+    return steps
 
 
-def _np_dartboard_per_replica(losses, cum, beta, rng, last, mark, clock, redraws) -> np.ndarray:
+def _np_redraw(idx, cum, beta, buf, pos, last, mark, clock, redraws) -> None:
+    """Replicas ``idx`` (increasing) draw an action from exp(-beta cum) and a clock."""
+    redraws[idx] += last[idx] >= 0
+    uv = buf[pos[0]:pos[0] + 2 * idx.size].reshape(idx.size, 2)
+    pos[0] += 2 * idx.size
+    cdf = _np_hedge_row_cdf(cum, beta)
+    a = (cdf[:, :-1] <= uv[:, :1]).sum(axis=1)
+    last[idx] = a
+    mark[idx] = cum[np.arange(idx.size), a]
+    clock[idx] = -np.log1p(-uv[:, 1]) / beta
+
+
+def _np_dartboard_per_replica(losses, cum, t0, out, beta, buf, pos, last, mark, clock, redraws) -> int:
     """As _np_dartboard_shared for losses (steps, replicas, n); ``cum`` (replicas, n)
-    holds each replica's cumulative losses and is advanced in place."""
+    holds each replica's cumulative losses before round t0 and is advanced in place."""
     steps, replicas, n = losses.shape
-    out = np.empty((steps, replicas), dtype=np.int64)
     rows = np.arange(replicas)
-    for t in range(steps):
-        expired = (last < 0) | (cum[rows, np.maximum(last, 0)] - mark >= clock)
-        idx = np.flatnonzero(expired)
+    for t in range(t0, steps):
+        if buf.shape[0] - pos[0] < 2 * replicas:
+            return t
+        idx = np.flatnonzero((last < 0) | (cum[rows, np.maximum(last, 0)] - mark >= clock))
         if idx.size:
-            redraws[idx] += last[idx] >= 0
-            uv = rng.random((idx.size, 2))
-            cdf = _np_hedge_row_cdf(cum[idx], beta)
-            a = (cdf[:, :-1] <= uv[:, :1]).sum(axis=1)
-            last[idx] = a
-            mark[idx] = cum[idx, a]
-            clock[idx] = -np.log1p(-uv[:, 1]) / beta
+            _np_redraw(idx, cum[idx], beta, buf, pos, last, mark, clock, redraws)
         out[t] = last
         cum += losses[t]
-    return out
+    return steps
 
 
 def _np_bandit_weights(losses, w, u, cur, p_cur, acc, pos, block, mix, rate, ix, gain) -> np.ndarray:
@@ -302,6 +309,34 @@ def _np_perturbed_leader(losses, cum, eta, rng) -> np.ndarray:
         out[t] = np.argmin(cum - rng.standard_exponential((replicas, n)) / eta, axis=1)
         cum += losses[t]
     return out
+
+
+def _np_epoch_ends(proposed, out, s0, rows, prev, count, alive, k) -> np.ndarray:
+    """One epoch-restart cohort's block: (steps, rows) proposals of its inner learner.
+
+    Writes the proposals of rows still ``alive`` into ``out[s0:, rows]``, and
+    returns for each row the first step at which its switch count (``count``,
+    carried from earlier blocks, with ``prev`` the last proposal, -1 before
+    any) reaches ``k``, for alive rows; -1 where it does not. ``prev`` and
+    ``count`` are advanced over the whole block in place."""
+    live = np.flatnonzero(alive)
+    out[s0:, rows[live]] = proposed[:, live]
+    before = np.concatenate([prev[None], proposed[:-1]], axis=0)
+    running = count[None] + np.cumsum((proposed != before) & (before >= 0), axis=0)
+    over = (running >= k) & alive[None]
+    ends = np.where(over.any(axis=0), over.argmax(axis=0), -1)
+    count[:] = running[-1]
+    prev[:] = proposed[-1]
+    return ends
+
+
+def _np_cumulative_before(cum0, losses) -> tuple:
+    """Cumulative losses before each round of a (steps, n) block, and after it.
+
+    ``cum0`` (n,) are the totals before the block. Sums run in round order, as a
+    round-by-round update would (numpy's cumsum along the first axis does)."""
+    cums = np.cumsum(np.concatenate([cum0[None, :], losses], axis=0), axis=0)
+    return cums[:-1], cums[-1].copy()
 
 
 # -- numba --------------------------------------------------------------------
@@ -452,52 +487,54 @@ if numba is not None:
             out[j] = out[j] / acc
 
     @_jit
-    def _nb_dartboard_shared(before, beta, rng, last, mark, clock, redraws):
+    def _nb_dartboard_shared(before, t0, out, beta, buf, pos, last, mark, clock, redraws):
         steps, n = before.shape
         replicas = last.shape[0]
-        out = np.empty((steps, replicas), dtype=np.int64)
         cdf = np.empty(n)
-        for t in range(steps):
+        for t in range(t0, steps):
+            if buf.shape[0] - pos[0] < 2 * replicas:
+                return t
             ready = False  # the round's CDF, computed only if a replica redraws
             for r in range(replicas):
                 a = last[r]
                 if a < 0 or before[t, a] - mark[r] >= clock[r]:
                     if a >= 0:
                         redraws[r] += 1
-                    u = rng.random()
-                    v = rng.random()
+                    p = pos[0]
+                    pos[0] = p + 2
                     if not ready:
                         _nb_hedge_row_cdf(before[t], beta, cdf)
                         ready = True
-                    a = _nb_draw(cdf, u)
+                    a = _nb_draw(cdf, buf[p])
                     last[r] = a
                     mark[r] = before[t, a]
-                    clock[r] = -np.log1p(-v) / beta
+                    clock[r] = -np.log1p(-buf[p + 1]) / beta
                 out[t, r] = a
-        return out
+        return steps
 
     @_jit
-    def _nb_dartboard_per_replica(losses, cum, beta, rng, last, mark, clock, redraws):
+    def _nb_dartboard_per_replica(losses, cum, t0, out, beta, buf, pos, last, mark, clock, redraws):
         steps, replicas, n = losses.shape
-        out = np.empty((steps, replicas), dtype=np.int64)
         cdf = np.empty(n)
-        for t in range(steps):
+        for t in range(t0, steps):
+            if buf.shape[0] - pos[0] < 2 * replicas:
+                return t
             for r in range(replicas):
                 a = last[r]
                 if a < 0 or cum[r, a] - mark[r] >= clock[r]:
                     if a >= 0:
                         redraws[r] += 1
-                    u = rng.random()
-                    v = rng.random()
+                    p = pos[0]
+                    pos[0] = p + 2
                     _nb_hedge_row_cdf(cum[r], beta, cdf)
-                    a = _nb_draw(cdf, u)
+                    a = _nb_draw(cdf, buf[p])
                     last[r] = a
                     mark[r] = cum[r, a]
-                    clock[r] = -np.log1p(-v) / beta
+                    clock[r] = -np.log1p(-buf[p + 1]) / beta
                 out[t, r] = a
                 for j in range(n):
                     cum[r, j] += losses[t, r, j]
-        return out
+        return steps
 
     @_jit
     def _nb_bandit_weights(losses, w, u, cur, p_cur, acc, pos, block, mix, rate, ix, gain):
@@ -625,6 +662,37 @@ if numba is not None:
         return out
 
 
+if numba is not None:
+    @_jit
+    def _nb_epoch_ends(proposed, out, s0, rows, prev, count, alive, k):
+        steps, width = proposed.shape
+        ends = np.full(width, -1, dtype=np.int64)
+        for s in range(steps):
+            for j in range(width):
+                a = proposed[s, j]
+                if alive[j]:
+                    out[s0 + s, rows[j]] = a
+                b = prev[j]
+                count[j] += (a != b) & (b >= 0)
+                prev[j] = a
+                if ends[j] < 0 and alive[j] and count[j] >= k:
+                    ends[j] = s
+        return ends
+
+
+if numba is not None:
+    @_jit
+    def _nb_cumulative_before(cum0, losses):
+        steps, n = losses.shape
+        before = np.empty((steps, n))
+        after = cum0.copy()
+        for t in range(steps):
+            for j in range(n):
+                before[t, j] = after[j]
+                after[j] = after[j] + losses[t, j]
+        return before, after
+
+
 def _pick():
     wanted = os.environ.get("BOUNDBREAKER_KERNELS", "numba").strip().lower()
     return "numba" if (numba is not None and wanted != "numpy") else "numpy"
@@ -635,7 +703,8 @@ BACKEND = _pick()
 
 KERNELS = ("sample_rows", "account_shared", "account_per_replica", "hedge_per_replica", "lazy_leader",
            "dartboard_shared", "dartboard_per_replica", "bandit_weights", "cap_block", "lazy_argmin",
-           "random_walk", "perturbed_leader")
+           "random_walk", "perturbed_leader", "epoch_ends",
+           "cumulative_before")
 """Every kernel, by name; ``_np_<name>`` is its numpy twin and ``_nb_<name>`` its compiled loop."""
 
 _IMPLS = {"numpy": {name: globals()["_np_" + name] for name in KERNELS}}
@@ -646,6 +715,39 @@ if numba is not None:
 def implementation(name: str, backend: str | None = None):
     """A kernel by name from a given backend (tests compare the two)."""
     return _IMPLS[backend or BACKEND][name]
+
+
+class UniformStream:
+    """The uniforms of ``rng.random()``, in order, read through a buffer.
+
+    ``take(k)`` returns the next k values: exactly what k single calls would
+    give, whenever refills happen. Kernels that draw a data-dependent number
+    of uniforms read ``buffer`` from ``position[0]`` on and advance it,
+    stopping when fewer than they may need are left; the caller then
+    ``reserve``s and resumes. (Handing a compiled loop the Generator itself
+    costs tens of microseconds per call, which dominates when a learner is
+    called for many small blocks, as epoch restarts do.)
+    """
+
+    def __init__(self, rng: np.random.Generator, chunk: int = 4096):
+        self.rng = rng
+        self.chunk = int(chunk)
+        self.buffer = np.empty(0)
+        self.position = np.zeros(1, dtype=np.int64)
+
+    def reserve(self, k: int) -> None:
+        """Make at least ``k`` unread values available."""
+        left = self.buffer.size - int(self.position[0])
+        if left < k:
+            fresh = self.rng.random(max(k - left, self.chunk))
+            self.buffer = np.concatenate([self.buffer[int(self.position[0]):], fresh])
+            self.position[0] = 0
+
+    def take(self, k: int) -> np.ndarray:
+        self.reserve(k)
+        p = int(self.position[0])
+        self.position[0] = p + k
+        return self.buffer[p:p + k]
 
 
 sample_rows = implementation("sample_rows")
@@ -660,3 +762,5 @@ cap_block = implementation("cap_block")
 lazy_argmin = implementation("lazy_argmin")
 random_walk = implementation("random_walk")
 perturbed_leader = implementation("perturbed_leader")
+epoch_ends = implementation("epoch_ends")
+cumulative_before = implementation("cumulative_before")

@@ -46,26 +46,42 @@ def test_lazy_leader_identical(rng, shared):
     assert np.all(a[1:, 5:][still] == a[:-1, 5:][still]) and still.mean() > 0.5
 
 
+def _play_dartboard(backend, shared, data, state, steps, replicas, buffer_size):
+    """Run a dartboard kernel to the end, refilling a UniformStream of ``buffer_size`` as it asks."""
+    rng = np.random.default_rng(4)
+    stream = kernels.UniformStream(rng, chunk=buffer_size)
+    out = np.empty((steps, replicas), dtype=np.int64)
+    name = "dartboard_shared" if shared else "dartboard_per_replica"
+    t, calls = 0, 0
+    while t < steps:
+        stream.reserve(2 * replicas)
+        t = kernels.implementation(name, backend)(*data, t, out, state[0], stream.buffer, stream.position,
+                                                  *state[1:])
+        calls += 1
+    return out, calls
+
+
 @pytest.mark.parametrize("shared", [True, False])
 def test_dartboard_identical(rng, shared):
-    """Both backends draw the same uniforms in the same order and play the same actions."""
+    """Both backends consume the same uniforms in the same order and play the same actions,
+    and the buffer's size (how often the kernel stops for a refill) changes nothing."""
     steps, replicas, n, beta = 80, 64, 5, 0.4
     table = rng.random((steps, n) if shared else (steps, replicas, n))
-    name = "dartboard_shared" if shared else "dartboard_per_replica"
-
-    def make():
-        last = np.full(replicas, -1, dtype=np.int64)
-        last[::3] = 2  # some replicas start mid-game, holding action 2
-        state = (beta, np.random.default_rng(4), last, np.zeros(replicas), np.full(replicas, 0.7),
-                 np.zeros(replicas, dtype=np.int64))
-        if shared:
-            return (np.cumsum(table, axis=0) - table, *state)
-        return (table, np.zeros((replicas, n)), *state)
-
-    (a, ra), (b, rb) = _both(name, make)
-    assert np.array_equal(a, b)
-    for k in (-4, -3, -2, -1):  # last, mark, clock, redraws
-        np.testing.assert_allclose(ra[k], rb[k], rtol=1e-12)
+    results = []
+    for backend in ("numba", "numpy"):
+        for buffer_size in (2 * replicas, 5000):
+            last = np.full(replicas, -1, dtype=np.int64)
+            last[::3] = 2  # some replicas start mid-game, holding action 2
+            state = (beta, last, np.zeros(replicas), np.full(replicas, 0.7), np.zeros(replicas, dtype=np.int64))
+            data = (np.cumsum(table, axis=0) - table,) if shared else (table, np.zeros((replicas, n)))
+            out, calls = _play_dartboard(backend, shared, data, state, steps, replicas, buffer_size)
+            results.append((out, state, calls))
+    (a, ra, small_calls), (b, rb, big_calls), (c, rc, _), (d, rd, _) = results
+    assert small_calls > big_calls >= 1   # the small buffer made the kernel stop and resume
+    for other, rother in ((b, rb), (c, rc), (d, rd)):
+        assert np.array_equal(a, other)
+        for x, y in zip(ra[1:], rother[1:]):  # last, mark, clock, redraws
+            np.testing.assert_allclose(x, y, rtol=1e-12)
     # a change of action needs a redraw
     assert np.all(ra[-1] >= (a[1:] != a[:-1]).sum(axis=0)) and ra[-1].sum() > 0
 
@@ -79,17 +95,16 @@ def test_dartboard_clock_rule_on_a_designed_sequence():
     for backend in ("numba", "numpy"):
         last, mark, clock = np.full(replicas, -1, dtype=np.int64), np.zeros(replicas), np.zeros(replicas)
         redraws = np.zeros(replicas, dtype=np.int64)
-        kernels.implementation("dartboard_shared", backend)(before, beta, np.random.default_rng(9), last,
-                                                            mark, clock, redraws)
-        r = np.random.default_rng(9)   # replay: two uniforms per draw, replicas in order within a round
+        _play_dartboard(backend, True, (before,), (beta, last, mark, clock, redraws), steps, replicas, 1000)
+        u = np.random.default_rng(4).random(1000)   # replay: two uniforms per draw, replicas in order
         due = np.zeros(replicas, dtype=np.int64)
-        count = np.full(replicas, -1)
+        count, k = np.full(replicas, -1), 0
         for t in range(steps):
-            for k in np.flatnonzero(due == t):
-                r.random()
-                c = -np.log1p(-r.random()) / beta
-                due[k] = t + max(1, int(np.ceil(c / 0.3 - 1e-9)))
-                count[k] += 1
+            for r in np.flatnonzero(due == t):
+                c = -np.log1p(-u[k + 1]) / beta
+                k += 2
+                due[r] = t + max(1, int(np.ceil(c / 0.3 - 1e-9)))
+                count[r] += 1
         assert np.array_equal(redraws, count), backend
         assert count.sum() > replicas  # the design makes clocks run out
 

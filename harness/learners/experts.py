@@ -25,10 +25,9 @@ def cumulative_before(cum0: np.ndarray, losses: np.ndarray) -> tuple[np.ndarray,
     """Cumulative losses *before* each round of a block, and after the block.
 
     ``cum0`` (n,), ``losses`` (steps, n) -> ((steps, n), (n,)). Sums in round
-    order, as a round-by-round update would.
+    order, as a round-by-round update would (``kernels.cumulative_before``).
     """
-    cums = np.cumsum(np.concatenate([cum0[None, :], losses], axis=0), axis=0)
-    return cums[:-1], cums[-1]
+    return kernels.cumulative_before(cum0, losses)
 
 
 def hedge_cdf(cum: np.ndarray, eta: float) -> np.ndarray:

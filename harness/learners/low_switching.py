@@ -222,6 +222,7 @@ class ShrinkingDartboard(_BlockCumulative):
         self._last = np.full(replicas, -1, dtype=np.int64)
         self._mark = np.zeros(replicas)               # L(a) when a was drawn
         self._clock = np.zeros(replicas)              # E / beta: the loss a may take before a redraw
+        self._uniforms = kernels.UniformStream(rng, chunk=max(256, 32 * replicas))
         self.redraws = np.zeros(replicas, dtype=np.int64)
 
     def act(self):
@@ -230,7 +231,7 @@ class ShrinkingDartboard(_BlockCumulative):
         idx = np.flatnonzero((self._last < 0) | (held - self._mark >= self._clock))
         if idx.size:
             self.redraws[idx] += self._last[idx] >= 0
-            uv = self._rng.random((idx.size, 2))
+            uv = self._uniforms.take(2 * idx.size).reshape(idx.size, 2)
             drawn = sample_each(hedge_cdf(cum[idx], self._beta), uv[:, 0])
             self._last[idx] = drawn
             self._mark[idx] = cum[idx, drawn]
@@ -238,13 +239,21 @@ class ShrinkingDartboard(_BlockCumulative):
         return self._last.copy()
 
     def play_block(self, losses):
-        state = (self._beta, self._rng, self._last, self._mark, self._clock, self.redraws)
+        steps = losses.shape[0]
+        out = np.empty((steps, self._replicas), dtype=np.int64)
         if losses.ndim == 2 and self._cum.ndim == 1:
             before, self._cum = cumulative_before(self._cum, losses)
-            return kernels.dartboard_shared(before, *state)
-        if losses.ndim == 2:
-            losses = np.broadcast_to(losses[:, None, :], (losses.shape[0], self._replicas, self._n))
-        return kernels.dartboard_per_replica(losses, self._per_replica(), *state)
+            kernel, data = kernels.dartboard_shared, (before,)
+        else:
+            if losses.ndim == 2:
+                losses = np.broadcast_to(losses[:, None, :], (steps, self._replicas, self._n))
+            kernel, data = kernels.dartboard_per_replica, (losses, self._per_replica())
+        stream, t = self._uniforms, 0
+        while t < steps:  # the kernel stops before a round when the buffered uniforms run low
+            stream.reserve(2 * self._replicas)
+            t = kernel(*data, t, out, self._beta, stream.buffer, stream.position, self._last, self._mark,
+                       self._clock, self.redraws)
+        return out
 
 
 # -- random-walk perturbation ----------------------------------------------------------------

@@ -130,10 +130,12 @@ def budget_cap(learner, budget) -> BudgetCap:
 class _Cohort:
     """One restart of the inner learner, serving the replicas that began an epoch together."""
 
-    def __init__(self, learner, rows):
+    def __init__(self, learner, rows, key):
         self.learner = learner
         self.rows = rows                                   # global replica indices
+        self.key = key                                     # creation order
         self.alive = np.ones(rows.size, dtype=bool)
+        self.live = rows.size                              # alive.sum()
         self.count = np.zeros(rows.size, dtype=np.int64)  # switches in this epoch
         self.prev = np.full(rows.size, -1, dtype=np.int64)  # last proposal
 
@@ -198,26 +200,38 @@ class EpochRestart(Learner):
         self._t = 0
         self.epochs = np.ones(replicas, dtype=np.int64)
         self.restarts = []   # (round the new epoch starts, replicas restarting), in time order
-        self._cohorts = [self._start(np.arange(replicas), horizon)]
+        self._cohorts = {}   # key -> live cohort, in creation order
+        self._start(np.arange(replicas), horizon)
 
     def _start(self, rows, remaining) -> _Cohort:
         learner = copy.deepcopy(self._inner)
         learner.reset(self._n, remaining, rows.size, self._rng.spawn(1)[0])
         learner._protocol_replicas = rows.size
-        return _Cohort(learner, rows)
+        cohort = _Cohort(learner, rows, len(self.restarts))
+        self._cohorts[cohort.key] = cohort
+        return cohort
+
+    def _end(self, cohort: _Cohort, done: np.ndarray) -> np.ndarray:
+        """Rows ``done`` (a mask or indices) of ``cohort`` end their epoch; returns their replicas."""
+        cohort.alive[done] = False
+        ended = cohort.rows[done]
+        cohort.live -= ended.size
+        if cohort.live == 0:  # spent: it plays no replica any more
+            del self._cohorts[cohort.key]
+        return ended
 
     # -- slow path -------------------------------------------------------------------
 
     def act(self):
         out = np.empty(self._replicas, dtype=np.int64)
-        for c in self._cohorts:
+        for c in self._cohorts.values():
             c.proposed = np.asarray(c.learner.act())
             out[c.rows[c.alive]] = c.proposed[c.alive]
         return out
 
     def update(self, actions, losses):
         ending = []
-        for c in self._cohorts:
+        for c in list(self._cohorts.values()):
             if self.feedback == "full":
                 seen = losses[c.rows]
             else:  # dead rows learn nothing: they get 0, never another action's loss
@@ -228,22 +242,18 @@ class EpochRestart(Learner):
             c.prev = c.proposed.astype(np.int64)
             done = c.alive & (c.count >= self.switches_per_epoch)
             if done.any():
-                c.alive &= ~done
-                ending.append(c.rows[done])
+                ending.append(self._end(c, done))
         self._t += 1
         self._restart(ending, self._t)
 
     def _restart(self, ending, t_next) -> _Cohort | None:
-        """Drop spent copies; start one fresh copy for the replicas in ``ending``."""
-        self._cohorts = [c for c in self._cohorts if c.alive.any()]
+        """Start one fresh copy for the replicas in ``ending``."""
         if not ending or t_next >= self._horizon:
             return None
         rows = np.sort(np.concatenate(ending))
         self.epochs[rows] += 1
         self.restarts.append((t_next, rows))
-        fresh = self._start(rows, self._horizon - t_next)
-        self._cohorts.append(fresh)
-        return fresh
+        return self._start(rows, self._horizon - t_next)
 
     # -- fast path -------------------------------------------------------------------
 
@@ -256,29 +266,20 @@ class EpochRestart(Learner):
 
         def play(c: _Cohort, s0: int):
             block = losses[s0:] if shared else losses[s0:, c.rows]
-            proposed = np.asarray(c.learner.play_block(block)).astype(np.int64)
-            alive = np.flatnonzero(c.alive)
-            out[s0:, c.rows[alive]] = proposed[:, alive]
-            prev = np.concatenate([c.prev[None], proposed[:-1]], axis=0)
-            count = c.count[None] + np.cumsum((proposed != prev) & (prev >= 0), axis=0)
-            over = count[:, alive] >= self.switches_per_epoch
-            ends = np.where(over.any(axis=0), over.argmax(axis=0), -1)
+            proposed = np.asarray(c.learner.play_block(block)).astype(np.int64, copy=False)
+            ends = kernels.epoch_ends(proposed, out, s0, c.rows, c.prev, c.count, c.alive, self.switches_per_epoch)
             for j in np.flatnonzero(ends >= 0):
                 s = s0 + int(ends[j])
                 if s not in pending:
                     pending[s] = []
                     heapq.heappush(events, s)
-                pending[s].append((c, alive[j]))
-            c.count, c.prev = count[-1], proposed[-1]
+                pending[s].append((c, j))
 
-        for c in list(self._cohorts):
+        for c in list(self._cohorts.values()):
             play(c, 0)
         while events:
             s = heapq.heappop(events)
-            ending = []
-            for c, j in pending.pop(s):
-                c.alive[j] = False
-                ending.append(c.rows[j:j + 1])
+            ending = [self._end(c, np.array([j])) for c, j in pending.pop(s)]
             fresh = self._restart(ending, self._t + s + 1)
             if fresh is not None and s + 1 < steps:
                 play(fresh, s + 1)
