@@ -1,0 +1,273 @@
+"""The fast-path kernels: compiled loops equal their numpy twins, the twins equal the
+definitions they implement, and the exact samplers have the laws they claim."""
+
+import math
+
+import numpy as np
+import pytest
+from hypothesis import given, strategies as st
+
+from harness import kernels
+from harness.learners import get as get_learner
+from harness.learners.experts import hedge_probabilities
+from harness.protocol import Learner
+
+from helpers import drive
+
+compiled = pytest.mark.skipif("numba" not in kernels._IMPLS, reason="numba not installed")
+
+
+def _both(name, make):
+    """Kernel ``name`` from both backends on fresh copies of the same inputs: [(result, args), ...]."""
+    backends = [b for b in ("numba", "numpy") if b in kernels._IMPLS]
+    out = []
+    for backend in backends:
+        args = make()
+        out.append((kernels.implementation(name, backend)(*args), args))
+    return out
+
+
+def _same(outs, *arg_positions):
+    (a, ra), *rest = outs
+    for b, rb in rest:
+        assert all(np.array_equal(x, y) for x, y in zip(np.atleast_1d(a) if not isinstance(a, tuple) else a,
+                                                      np.atleast_1d(b) if not isinstance(b, tuple) else b))
+        for k in arg_positions:
+            assert np.array_equal(ra[k], rb[k]), k
+
+
+# -- inverse-CDF sampling --------------------------------------------------------------
+
+
+@compiled
+@pytest.mark.parametrize("n", [2, 3, 23, 24, 25, 31, 32, 33, 64, 65, 1000])
+def test_sample_rows_both_strategies_equal_the_counting_rule(rng, n):
+    """Around the switch from counting to searching (SMALL_N) and at powers of two, both
+    backends give #{j < n-1 : cdf[j] <= u}, including u exactly on a CDF value and
+    zero-probability actions (equal CDF values), which are never drawn."""
+    w = rng.random((20, n))
+    w[:, ::3] = 0.0
+    w[:, -1] += 1e-3
+    cdf = np.cumsum(w, axis=1)
+    cdf /= cdf[:, -1:]
+    u = rng.random((20, 77))
+    u[:, :5] = cdf[:, :5] if n > 5 else u[:, :5]   # ties: u equal to a CDF value
+    expected = (cdf[:, None, :-1] <= u[:, :, None]).sum(axis=2)
+    for backend in ("numba", "numpy"):
+        got = kernels.implementation("sample_rows", backend)(cdf, u)
+        assert np.array_equal(got, expected), backend
+    p = np.diff(cdf, axis=1, prepend=0.0)
+    assert (p[np.arange(20)[:, None], expected] > 0).all()
+
+
+# -- running totals, caps, epochs ----------------------------------------------------------
+
+
+@compiled
+@pytest.mark.parametrize("shape", [(1, 4), (300, 7), (64, 1)])
+def test_cumulative_before_is_the_round_by_round_sum(rng, shape):
+    cum0 = rng.random(shape[1])
+    losses = rng.random(shape)
+    (before, after), _ = _both("cumulative_before", lambda: (cum0, losses))[0]
+    running = cum0.copy()
+    for t in range(shape[0]):                      # the definition: add round by round
+        assert np.array_equal(before[t], running)
+        running = running + losses[t]
+    assert np.array_equal(after, running)
+    other = _both("cumulative_before", lambda: (cum0, losses))[1][0]
+    assert np.array_equal(before, other[0]) and np.array_equal(after, other[1])
+
+
+@compiled
+@given(st.integers(1, 6), st.integers(0, 10_000))
+def test_cap_block_matches_a_plain_loop(budget, seed):
+    """The cap, both backends and a one-replica-at-a-time loop: identical play, never more
+    than ``budget`` switches, and the proposals are followed until the budget-th switch."""
+    r = np.random.default_rng(seed)
+    steps, replicas = 30, 9
+    proposed = r.integers(0, 3, (steps, replicas))
+    last0 = r.integers(-1, 3, replicas)
+    sw0 = np.where(last0 >= 0, np.minimum(r.integers(0, 3, replicas), budget), 0)  # no switch before a first action
+    outs = _both("cap_block", lambda: (proposed, last0.copy(), sw0.copy(), budget))
+    _same(outs, 1, 2)
+    played, args = outs[0]
+    for k in range(replicas):
+        last, sw = last0[k], sw0[k]
+        for t in range(steps):
+            a = proposed[t, k]
+            if sw >= budget:
+                a = last
+            elif last >= 0 and a != last:
+                sw += 1
+            assert played[t, k] == a
+            last = a
+        assert args[2][k] == sw <= budget
+
+
+@compiled
+def test_epoch_ends_finds_the_kth_switch(rng):
+    steps, width, k = 50, 12, 4
+    proposed = rng.integers(0, 3, (steps, width))
+    rows = np.arange(width) * 2 + 1
+
+    def make():
+        alive = np.ones(width, dtype=bool)
+        alive[::5] = False
+        return (proposed, np.full((steps + 3, 2 * width + 1), -7), 3, rows, np.full(width, -1),
+                np.zeros(width, dtype=np.int64), alive, k)
+
+    outs = _both("epoch_ends", make)
+    _same(outs, 1, 4, 5)
+    ends, args = outs[0]
+    out, alive = args[1], args[6]
+    switches = np.cumsum(proposed[1:] != proposed[:-1], axis=0)     # after rounds 1..steps-1
+    for j in range(width):
+        hit = np.flatnonzero(switches[:, j] >= k)
+        assert ends[j] == ((hit[0] + 1) if (hit.size and alive[j]) else -1)
+        col = out[3:, rows[j]]
+        assert np.array_equal(col, proposed[:, j]) if alive[j] else np.all(col == -7)
+
+
+# -- perturbed leaders ---------------------------------------------------------------------
+
+
+@compiled
+@pytest.mark.parametrize("shared", [True, False])
+def test_lazy_argmin_is_the_argmin_every_round(rng, shared):
+    """Lazy recomputation never changes the answer: every round it is np.argmin of the
+    scores (ties included: integer-valued losses make them common), from a fresh start or
+    from a cached leader that is still valid."""
+    steps, replicas, n = 200, 40, 5
+    table = rng.integers(0, 2, (steps, n) if shared else (steps, replicas, n)).astype(float)
+    before = np.cumsum(table, axis=0) - table
+    if shared:
+        before = np.broadcast_to(before[:, None, :], (steps, replicas, n))
+    shift = rng.integers(0, 4, (replicas, n)).astype(float)   # integer shifts: many exact ties
+
+    def make():
+        return before, shift, np.full(replicas, -1, dtype=np.int64), np.zeros(replicas)
+
+    outs = _both("lazy_argmin", make)
+    _same(outs, 2, 3)
+    leaders = outs[0][0]
+    assert np.array_equal(leaders, np.argmin(before - shift[None], axis=2))
+    # and it was lazy: the level is the least other score at the last recomputation
+    assert np.all(outs[0][1][3] >= np.sort(before[0] - shift, axis=1)[:, 1])
+
+
+@compiled
+@pytest.mark.parametrize("shared", [True, False])
+def test_random_walk_equals_its_definition(rng, shared):
+    """Z_t = Z_{t-1} + scale * X_t with X_t = rng.standard_normal((replicas, n)) each round,
+    a_t = argmin(L + Z_t): both backends reproduce it from the same generator."""
+    steps, replicas, n, scale = 60, 30, 4, 0.7
+    table = rng.random((steps, n) if shared else (steps, replicas, n))
+    before = np.cumsum(table, axis=0) - table
+    if shared:
+        before = np.broadcast_to(before[:, None, :], (steps, replicas, n))
+    outs = _both("random_walk", lambda: (before, np.zeros((replicas, n)), scale, np.random.default_rng(3)))
+    _same(outs, 1)
+    g = np.random.default_rng(3)
+    z = np.zeros((replicas, n))
+    for t in range(steps):
+        z = z + scale * g.standard_normal((replicas, n))
+        assert np.array_equal(outs[0][0][t], np.argmin(before[t] + z, axis=1))
+
+
+@compiled
+def test_perturbed_leader_equals_its_definition(rng):
+    steps, replicas, n, eta = 50, 20, 6, 0.8
+    table = rng.random((steps, replicas, n))
+    outs = _both("perturbed_leader", lambda: (table, np.zeros((replicas, n)), eta, np.random.default_rng(5)))
+    _same(outs, 1)
+    g = np.random.default_rng(5)
+    cum = np.zeros((replicas, n))
+    for t in range(steps):
+        assert np.array_equal(outs[0][0][t], np.argmin(cum - g.standard_exponential((replicas, n)) / eta, axis=1))
+        cum += table[t]
+
+
+# -- the buffered uniform stream -----------------------------------------------------------
+
+
+@given(st.lists(st.integers(0, 50), max_size=30), st.integers(1, 40))
+def test_uniform_stream_reads_the_generator_in_order(takes, chunk):
+    """Whatever the reads and the refill size, the values are rng.random()'s, in order."""
+    stream = kernels.UniformStream(np.random.default_rng(8), chunk=chunk)
+    got = [stream.take(k) for k in takes]
+    flat = np.concatenate(got) if got else np.empty(0)
+    assert np.array_equal(flat, np.random.default_rng(8).random(flat.size))
+
+
+# -- Shrinking Dartboard: clocks against the per-round coin --------------------------------
+
+
+class _TextbookDartboard(Learner):
+    """Shrinking Dartboard as Geulen, Voecking and Winkler (2010) state it: every round a
+    fresh coin keeps a_{t-1} with probability w_t(a)/w_{t-1}(a), else a_t ~ p_t."""
+
+    def __init__(self, eta):
+        self.eta = eta
+
+    def reset(self, n_actions, horizon, replicas, rng):
+        self._rng, self._R = rng, replicas
+        self._cum = np.zeros(n_actions)
+        self._prev = np.zeros(n_actions)
+        self._last = np.full(replicas, -1)
+
+    def act(self):
+        beta = -math.log1p(-self.eta)
+        w = np.exp(-beta * (self._cum - self._cum.min()))
+        cdf = np.cumsum(w) / w.sum()
+        ratio = (1 - self.eta) ** self._prev
+        keep = (self._last >= 0) & (self._rng.random(self._R) < ratio[np.maximum(self._last, 0)])
+        drawn = np.minimum(np.searchsorted(cdf, self._rng.random(self._R), side="right"), cdf.size - 1)
+        self._last = np.where(keep, self._last, drawn)
+        return self._last.copy()
+
+    def update(self, actions, losses):
+        self._prev = np.asarray(losses[0], dtype=float)
+        self._cum = self._cum + self._prev
+
+
+@pytest.mark.parametrize("fast", [True, False], ids=["fast", "slow"])
+def test_dartboard_clocks_have_the_per_round_transition_law(rng, fast):
+    """The exponential clocks are the per-round coin in law: on a fixed sequence the frequency
+    of each consecutive pair (a_t, a_{t+1}) matches the exact transition law of the
+    construction, P = p_t(i) [r_{t+1}(i) 1{i=j} + (1 - r_{t+1}(i)) p_{t+1}(j)] with
+    r_{t+1} = (1 - eta)^{l_t} (closed form), within 5 standard errors (10 rounds x 9 pairs =
+    90 cells, each false-failing with probability < 6e-7: total < 6e-5). The textbook coin
+    passes the same check, so the check itself is right."""
+    T, n, R, eta = 40, 3, 20000, 0.3
+    losses = rng.random((T, n)) * np.array([1.0, 0.6, 0.3])
+    p = hedge_probabilities(losses, -math.log1p(-eta))
+    learners = [get_learner("shrinking-dartboard", eta=eta)] + ([_TextbookDartboard(eta)] if fast else [])
+    for learner in learners:
+        actions = drive(learner, losses, R, seed=12, fast=fast and not isinstance(learner, _TextbookDartboard))
+        for t in range(5, T - 1, 3):
+            r = (1 - eta) ** losses[t]
+            exact = p[t][:, None] * (np.diag(r) + (1 - r)[:, None] * p[t + 1][None, :])
+            freq = np.zeros((n, n))
+            np.add.at(freq, (actions[t], actions[t + 1]), 1.0 / R)
+            se = np.sqrt(exact * (1 - exact) / R)
+            assert np.all(np.abs(freq - exact) <= 5 * se + 1e-12), (type(learner).__name__, t)
+
+
+@pytest.mark.parametrize("name, params", [("shrinking-dartboard", {}), ("mw-ftpl", {}), ("exp3", {}),
+                                          ("random-walk", {}), ("ftpl", {})])
+def test_slow_rounds_then_fast_blocks_equal_slow_all_along(rng, name, params):
+    """A learner may be driven round by round and then by blocks (the runner never mixes,
+    but users may): the fast path picks up the slow path's state and plays as the slow path
+    would, from the same seed (identical actions for learners whose paths draw alike)."""
+    T, R, n = 90, 16, 4
+    table = (rng.random((T, R, n)) < 0.5).astype(float)
+    mixed = get_learner(name, **params)
+    mixed.reset(n, T, R, np.random.default_rng(1))
+    mixed._protocol_replicas = R
+    first = Learner.play_block(mixed, table[:30])
+    rest = mixed.play_block(table[30:])
+    slow = drive(get_learner(name, **params), table, R, seed=1, fast=False)
+    if name == "exp3":  # the paths keep weights differently (log / rescaled): same law, not same draws
+        assert rest.shape == (T - 30, R) and np.array_equal(first, slow[:30])
+        return
+    assert np.array_equal(np.concatenate([first, rest]), slow)
