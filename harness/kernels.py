@@ -339,6 +339,44 @@ def _np_cumulative_before(cum0, losses) -> tuple:
     return cums[:-1], cums[-1].copy()
 
 
+# Below this, a_j y rounds 1 - a_j y to exactly 1 for every y in [0, 1): the factor is 1.
+FTPL_TINY = 2.0 ** -54
+# Running products below this are set to 0 (their share of any probability is far below
+# rounding), which keeps the loops out of slow subnormal arithmetic.
+FTPL_FLUSH = 1e-200
+
+
+def _np_ftpl_rows(a, y, w) -> np.ndarray:
+    """Unnormalised FTPL probabilities a_i sum_k w_k prod_{j != i} (1 - a_j y_k), per row.
+
+    ``a`` (rows, n) = exp(-eta (L - min L)); ``y``, ``w`` Gauss-Legendre nodes
+    and weights on [0, 1]. Factors with a_j < FTPL_TINY are exactly 1 in
+    floating point and are skipped: Q(y_k) = prod over the others; for an
+    active i the product without i is Q(y_k) / (1 - a_i y_k) (the same rounded
+    factor divided back out: no cancellation), for an inactive i it is Q(y_k).
+    Products run in action order, sums in node order (the compiled loop's)."""
+    rows, n = a.shape
+    out = np.empty((rows, n))
+    for r in range(rows):
+        act = np.flatnonzero(a[r] >= FTPL_TINY)
+        aa = a[r, act]
+        q = np.ones(y.size)
+        for j, aj in enumerate(aa):
+            q = q * (1.0 - aj * y)
+            if j % 16 == 15:
+                q[q < FTPL_FLUSH] = 0.0
+        wq = w * q
+        total = 0.0
+        for k in range(y.size):
+            total += wq[k]
+        acc = np.zeros(aa.size)
+        for k in range(y.size):
+            acc += wq[k] / (1.0 - aa * y[k])
+        out[r] = a[r] * total
+        out[r, act] = aa * acc
+    return out
+
+
 # -- numba --------------------------------------------------------------------
 
 try:  # numba is a declared dependency, but the numpy path keeps working without it
@@ -347,7 +385,9 @@ except Exception:  # pragma: no cover - exercised only where numba is missing
     numba = None
 
 if numba is not None:
-    _jit = numba.njit(cache=True, nogil=True)
+    # error_model="numpy": float division follows IEEE (as the numpy twins do) instead of
+    # raising ZeroDivisionError, and so loops with divisions vectorise.
+    _jit = numba.njit(cache=True, nogil=True, error_model="numpy")
 
     @_jit
     def _nb_sample_rows(cdf, u):
@@ -693,6 +733,51 @@ if numba is not None:
         return before, after
 
 
+if numba is not None:
+    @_jit
+    def _nb_ftpl_rows(a, y, w):
+        rows, n = a.shape
+        m = y.shape[0]
+        out = np.empty((rows, n))
+        q = np.empty(m)
+        wq = np.empty(m)
+        aa = np.empty(n)
+        acc = np.empty(n)
+        for r in range(rows):
+            k = 0
+            for j in range(n):
+                if a[r, j] >= FTPL_TINY:
+                    aa[k] = a[r, j]
+                    k += 1
+            for i in range(m):
+                q[i] = 1.0
+            for j in range(k):
+                aj = aa[j]
+                for i in range(m):  # across nodes: vector lanes, each product in action order
+                    q[i] = q[i] * (1.0 - aj * y[i])
+                if j % 16 == 15:
+                    for i in range(m):
+                        if q[i] < FTPL_FLUSH:
+                            q[i] = 0.0
+            total = 0.0
+            for i in range(m):
+                wq[i] = w[i] * q[i]
+                total += wq[i]
+            for j in range(k):
+                acc[j] = 0.0
+            for i in range(m):
+                for j in range(k):  # across actions: vector lanes, each sum in node order
+                    acc[j] += wq[i] / (1.0 - aa[j] * y[i])
+            k = 0
+            for j in range(n):
+                if a[r, j] >= FTPL_TINY:
+                    out[r, j] = aa[k] * acc[k]
+                    k += 1
+                else:
+                    out[r, j] = a[r, j] * total
+        return out
+
+
 def _pick():
     wanted = os.environ.get("BOUNDBREAKER_KERNELS", "numba").strip().lower()
     return "numba" if (numba is not None and wanted != "numpy") else "numpy"
@@ -704,7 +789,7 @@ BACKEND = _pick()
 KERNELS = ("sample_rows", "account_shared", "account_per_replica", "hedge_per_replica", "lazy_leader",
            "dartboard_shared", "dartboard_per_replica", "bandit_weights", "cap_block", "lazy_argmin",
            "random_walk", "perturbed_leader", "epoch_ends",
-           "cumulative_before")
+           "cumulative_before", "ftpl_rows")
 """Every kernel, by name; ``_np_<name>`` is its numpy twin and ``_nb_<name>`` its compiled loop."""
 
 _IMPLS = {"numpy": {name: globals()["_np_" + name] for name in KERNELS}}
@@ -764,3 +849,4 @@ random_walk = implementation("random_walk")
 perturbed_leader = implementation("perturbed_leader")
 epoch_ends = implementation("epoch_ends")
 cumulative_before = implementation("cumulative_before")
+ftpl_rows = implementation("ftpl_rows")

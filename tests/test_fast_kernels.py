@@ -271,3 +271,41 @@ def test_slow_rounds_then_fast_blocks_equal_slow_all_along(rng, name, params):
         assert rest.shape == (T - 30, R) and np.array_equal(first, slow[:30])
         return
     assert np.array_equal(np.concatenate([first, rest]), slow)
+
+
+# -- FTPL probabilities --------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("n, spread", [(7, 0.5), (40, 30.0), (200, 3.0), (300, 80.0)])
+def test_ftpl_probabilities_are_exact_with_fewer_nodes(rng, n, spread):
+    """Gauss-Legendre with m nodes integrates polynomials of degree <= 2m - 1 exactly (common
+    practice): the node count chosen from the active actions must give the same values as
+    the old full form, a_i sum_k w_k prod_{j != i} (1 - a_j y_k) over every action with
+    ceil(n/2) + 8 nodes, computed independently here with log1p products."""
+    from numpy.polynomial.legendre import leggauss
+
+    from harness.learners.experts import ftpl_probabilities
+
+    cum = rng.random((3, n)) * spread
+    cum[:, 0] = 0.0
+    eta = 1.0
+    got = ftpl_probabilities(cum, eta)
+    nodes, weights = leggauss(n // 2 + 8)
+    y, w = (nodes + 1) / 2, weights / 2
+    a = np.exp(-eta * (cum - cum.min(axis=1, keepdims=True)))
+    logs = np.log1p(-a[:, :, None] * y)
+    full = a * (np.exp(logs.sum(axis=1, keepdims=True) - logs) @ w)
+    full /= full.sum(axis=1, keepdims=True)
+    np.testing.assert_allclose(got, full, rtol=1e-11, atol=1e-300)
+    if spread > 50:
+        assert (a < kernels.FTPL_TINY).any()   # the inactive-action branch was exercised
+
+
+@compiled
+def test_ftpl_rows_twins_identical(rng):
+    from harness.learners.experts import _gauss_legendre_01
+
+    a = np.exp(-rng.random((6, 90)) * 60)
+    a[:, 3] = 1.0
+    y, w = _gauss_legendre_01(46)
+    _same(_both("ftpl_rows", lambda: (a, y, w)))
