@@ -23,10 +23,10 @@ import math
 
 import numpy as np
 
-from harness import validate
+from harness import kernels, validate
 
 from . import REGISTRY
-from .oblivious import RandomOblivious, pareto_length
+from .oblivious import RandomOblivious
 
 
 class _TwoLeaderWalk(RandomOblivious):
@@ -38,19 +38,15 @@ class _TwoLeaderWalk(RandomOblivious):
         super().reset(n_actions, horizon, replicas, rng)
         self._d = np.zeros(self._rows, dtype=np.int64)
 
-    def _step(self, u: np.ndarray) -> np.ndarray:
-        """Direction (+1 / -1) of D for one round, per row, given this round's uniforms (rows, k)."""
+    def _walk(self, u: np.ndarray) -> np.ndarray:
+        """Whether D rises (else it falls), (steps, rows), given the block's uniforms
+        (steps, rows, k); advances D and the walk's state (a compiled kernel)."""
         raise NotImplementedError
 
     def losses(self, t0, t1):
         steps = t1 - t0
-        u = self._uniforms(steps, self._uniforms_per_round)
+        up = self._walk(self._uniforms(steps, self._uniforms_per_round))
         out = np.ones((steps, self._rows, self._n))
-        up = np.empty((steps, self._rows), dtype=bool)
-        for s in range(steps):
-            direction = self._step(u[s])
-            self._d += direction
-            up[s] = direction > 0
         out[:, :, 0] = up           # D rises: action 0 loses 1, action 1 loses 0
         out[:, :, 1] = ~up
         return self._emit(out)
@@ -94,13 +90,9 @@ class ParetoOscillations(_TwoLeaderWalk):
         self._target = np.zeros(self._rows, dtype=np.int64)
         self._sign = np.full(self._rows, -1, dtype=np.int64)  # the first leg goes up
 
-    def _step(self, u):
-        turn = self._d == self._target
-        if turn.any():
-            self._sign[turn] = -self._sign[turn]
-            amp = pareto_length(u[turn, 0], self.scale, self.alpha, self._cap)
-            self._target[turn] = self._sign[turn] * amp
-        return np.sign(self._target - self._d)
+    def _walk(self, u):
+        return kernels.pareto_walk(np.ascontiguousarray(u[:, :, 0]), self._d, self._target, self._sign,
+                                   float(self.scale), float(self.alpha), int(self._cap))
 
 
 @REGISTRY.register("tie-stretches", "exact ties of Pareto-distributed length at random levels of the loss gap: "
@@ -141,20 +133,9 @@ class TieStretches(_TwoLeaderWalk):
         self._travel = np.ones(self._rows, dtype=bool)
         self._level = self._draw_level(rng.random(self._rows))  # the first level: one draw per row
 
-    def _step(self, u):
-        arrive = self._travel & (self._d == self._level)
-        if arrive.any():
-            self._travel[arrive] = False
-            self._left[arrive] = pareto_length(u[arrive, 1], self.scale, self.alpha, self._horizon + 1)
-        direction = np.where(self._d > self._level, -1, 1)        # travel toward the level
-        tie = ~self._travel
-        direction[tie] = np.where(self._d[tie] == self._level[tie], 1, -1)  # c -> c+1 -> c ...
-        self._left[tie] -= 1
-        done = tie & (self._left == 0)
-        if done.any():
-            self._travel[done] = True
-            self._level[done] = self._draw_level(u[done, 0])
-        return direction
+    def _walk(self, u):
+        return kernels.tie_walk(u, self._d, self._left, self._travel, self._level, float(self.scale),
+                                float(self.alpha), int(self._horizon + 1), int(self._spread))
 
     def _draw_level(self, u):
         width = 2 * self._spread + 1

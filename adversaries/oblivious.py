@@ -13,7 +13,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from harness import validate
+from harness import kernels, validate
+from harness.kernels import pareto_length  # noqa: F401  (the heavy-tail walks' kernels share it)
 from harness.errors import ConfigError
 from harness.protocol import Adversary
 
@@ -47,17 +48,6 @@ class RandomOblivious(Adversary):
     def _emit(self, losses: np.ndarray) -> np.ndarray:
         """(steps, rows, n) -> the runner's shape."""
         return losses[:, 0, :] if self.shared else losses
-
-
-def pareto_length(u: np.ndarray, scale: float, alpha: float, cap: int) -> np.ndarray:
-    """ceil(scale * (1-u)^(-1/alpha)), capped: a Pareto(scale, alpha) length >= 1 by inversion.
-
-    P[L > x] = (scale / x)^alpha for x >= scale (the Pareto survival function;
-    common practice). One uniform per length, so draws stay block-invariant.
-    """
-    with np.errstate(over="ignore", divide="ignore"):
-        x = np.ceil(scale * np.power(1.0 - u, -1.0 / alpha))
-    return np.minimum(np.nan_to_num(x, nan=cap, posinf=cap), cap).astype(np.int64).clip(min=1)
 
 
 class SegmentSchedule:
@@ -314,13 +304,5 @@ class NearTie(RandomOblivious):
         self._cum = np.zeros((self._rows, self.leaders))
 
     def losses(self, t0, t1):
-        steps, k = t1 - t0, self.leaders
-        u = self._uniforms(steps, self._n)
-        out = np.ones((steps, self._rows, self._n))
-        v = -np.sort(-(0.5 + self.margin * (u[:, :, :k] - 0.5)), axis=2)  # largest first
-        rows = np.arange(self._rows)[:, None]
-        for s in range(steps):
-            order = np.argsort(self._cum, axis=1, kind="stable")  # least cumulative first
-            out[s, rows, order] = v[s]
-            self._cum += out[s, :, :k]
-        return self._emit(out)
+        u = self._uniforms(t1 - t0, self._n)
+        return self._emit(kernels.near_tie(u, float(self.margin), self._cum))

@@ -160,11 +160,15 @@ def _cmd_list(args) -> int:
 
 
 def _add_bench(sub):
-    p = sub.add_parser("bench", help="measure throughput (replica-rounds/s) and peak memory")
+    p = sub.add_parser("bench", help="measure throughput (replica-rounds/s), memory and scaling")
     p.add_argument("--horizon", type=int, default=100_000)
     p.add_argument("--replicas", type=int, default=1024)
     p.add_argument("--actions", type=int, default=10)
+    p.add_argument("--large-actions", type=int, default=1000, help="n of the second throughput table")
+    p.add_argument("--large-horizon", type=int, default=10_000, help="horizon of the second throughput table")
     p.add_argument("--learners", default=None, help="comma-separated names (default: all reference learners)")
+    p.add_argument("--sections", default=None,
+                   help="comma-separated subset of throughput,large,bandwidth,memory,sweep,scaling (default: all)")
     p.add_argument("--quick", action="store_true", help="smaller sizes, for a smoke test")
     p.add_argument("--json", action="store_true")
     p.set_defaults(handler=_cmd_bench)
@@ -173,8 +177,10 @@ def _add_bench(sub):
 def _cmd_bench(args) -> int:
     from . import bench
 
+    sections = tuple(s.strip() for s in args.sections.split(",")) if args.sections else bench.SECTIONS
     report = bench.main(horizon=args.horizon, replicas=args.replicas, n_actions=args.actions,
-                        learners=args.learners.split(",") if args.learners else None, quick=args.quick)
+                        learners=args.learners.split(",") if args.learners else None, quick=args.quick,
+                        large_actions=args.large_actions, large_horizon=args.large_horizon, sections=sections)
     print(json.dumps(report, indent=2) if args.json else bench.format_report(report))
     return EXIT_PASS
 

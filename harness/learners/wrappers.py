@@ -14,6 +14,7 @@ from __future__ import annotations
 import copy
 import heapq
 import math
+from array import array
 from typing import Callable
 
 import numpy as np
@@ -199,15 +200,24 @@ class EpochRestart(Learner):
         self._n, self._horizon, self._replicas, self._rng = n_actions, horizon, replicas, rng
         self._t = 0
         self.epochs = np.ones(replicas, dtype=np.int64)
-        self.restarts = []   # (round the new epoch starts, replicas restarting), in time order
+        # the restart log, flat: 8 bytes per restarting replica (it grows with the number of
+        # restarts, the one record here that does; see ``restarts``)
+        self._log_round, self._log_size, self._log_rows = array("q"), array("q"), array("q")
         self._cohorts = {}   # key -> live cohort, in creation order
         self._start(np.arange(replicas), horizon)
+
+    @property
+    def restarts(self) -> list:
+        """(round the new epoch starts, replicas restarting), in time order."""
+        rows = np.frombuffer(self._log_rows, dtype=np.int64) if len(self._log_rows) else np.empty(0, np.int64)
+        cuts = np.cumsum(np.frombuffer(self._log_size, dtype=np.int64))[:-1] if len(self._log_size) else []
+        return list(zip(self._log_round.tolist(), np.split(rows.copy(), cuts)))
 
     def _start(self, rows, remaining) -> _Cohort:
         learner = copy.deepcopy(self._inner)
         learner.reset(self._n, remaining, rows.size, self._rng.spawn(1)[0])
         learner._protocol_replicas = rows.size
-        cohort = _Cohort(learner, rows, len(self.restarts))
+        cohort = _Cohort(learner, rows, len(self._log_round))
         self._cohorts[cohort.key] = cohort
         return cohort
 
@@ -252,7 +262,9 @@ class EpochRestart(Learner):
             return None
         rows = np.sort(np.concatenate(ending))
         self.epochs[rows] += 1
-        self.restarts.append((t_next, rows))
+        self._log_round.append(t_next)
+        self._log_size.append(rows.size)
+        self._log_rows.extend(rows.tolist())
         return self._start(rows, self._horizon - t_next)
 
     # -- fast path -------------------------------------------------------------------
