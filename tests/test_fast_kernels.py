@@ -156,25 +156,6 @@ def test_lazy_argmin_is_the_argmin_every_round(rng, shared):
 
 
 @compiled
-@pytest.mark.parametrize("shared", [True, False])
-def test_random_walk_equals_its_definition(rng, shared):
-    """Z_t = Z_{t-1} + scale * X_t with X_t = rng.standard_normal((replicas, n)) each round,
-    a_t = argmin(L + Z_t): both backends reproduce it from the same generator."""
-    steps, replicas, n, scale = 60, 30, 4, 0.7
-    table = rng.random((steps, n) if shared else (steps, replicas, n))
-    before = np.cumsum(table, axis=0) - table
-    if shared:
-        before = np.broadcast_to(before[:, None, :], (steps, replicas, n))
-    outs = _both("random_walk", lambda: (before, np.zeros((replicas, n)), scale, np.random.default_rng(3)))
-    _same(outs, 1)
-    g = np.random.default_rng(3)
-    z = np.zeros((replicas, n))
-    for t in range(steps):
-        z = z + scale * g.standard_normal((replicas, n))
-        assert np.array_equal(outs[0][0][t], np.argmin(before[t] + z, axis=1))
-
-
-@compiled
 def test_perturbed_leader_equals_its_definition(rng):
     steps, replicas, n, eta = 50, 20, 6, 0.8
     table = rng.random((steps, replicas, n))
@@ -309,3 +290,98 @@ def test_ftpl_rows_twins_identical(rng):
     a[:, 3] = 1.0
     y, w = _gauss_legendre_01(46)
     _same(_both("ftpl_rows", lambda: (a, y, w)))
+
+
+# -- random-walk perturbation: the windowed sampler ------------------------------------------
+
+
+def _brute_random_walk(losses, replicas, scale, seed):
+    """The definition, step by step: Z_t = Z_{t-1} + scale N(0, 1) per action, a_t =
+    argmin(L_{t-1} + Z_t) (ties: lowest index)."""
+    g = np.random.default_rng(seed)
+    T, n = losses.shape
+    cum = np.zeros(n)
+    z = np.zeros((replicas, n))
+    out = np.empty((T, replicas), dtype=np.int64)
+    for t in range(T):
+        z += scale * g.standard_normal((replicas, n))
+        out[t] = np.argmin(cum + z, axis=1)
+        cum = cum + losses[t]
+    return out
+
+
+def _walk_branches(learner, table, replicas, seed, block):
+    """Play ``table`` in blocks of ``block`` rounds and count, at each window, how many far
+    walks stayed above their level (never drawn) and how many were drawn from a crossing."""
+    learner.reset(table.shape[1], table.shape[0], replicas, np.random.default_rng(seed))
+    learner._protocol_replicas = replicas
+    out, stayed, crossed = [], 0, 0
+    for t0 in range(0, table.shape[0], block):
+        out.append(learner.play_block(table[t0:t0 + block]))
+        length = learner._window[1]
+        stayed += int((learner._first == length + 1).sum())
+        crossed += int(((learner._first > 1) & (learner._first <= length)).sum())
+    return np.concatenate(out), stayed, crossed
+
+
+@pytest.mark.parametrize("scale, gap, near", [(0.5, 0.06, 2.0), (0.3, 0.15, -1.0), (0.5, 0.06, -4.0)])
+def test_windowed_random_walk_has_the_law_of_the_definition(scale, gap, near):
+    """The windowed sampler (certified far walks, inverse-Gaussian first passages, bridges)
+    against the step-by-step definition, 6000 replicas each on one fixed sequence (T = 320,
+    n = 4, means spread by ``gap`` so that leaders drift apart). ``near`` below the default
+    calls far walks that are close to leading, so the 'crossed' branch (first passage,
+    then a bridge) is taken thousands of times; the law must not depend on it.
+    (1) every 16th round, each action's frequency: two-sample z within 5 SE (80 cells);
+    (2) the pairs (a_t, a_{t+12}) at 6 rounds, the temporal law the windows could break:
+        5 SE per cell (96 cells);
+    (3) switch counts and total loss: two-sample KS, alpha = 1e-5 each.
+    Cells false-fail with probability < 6e-7 each, KS 1e-5: total < 2e-4 per case."""
+    R, T, n = 6000, 320, 4
+    rng = np.random.default_rng(41)
+    table = (rng.random((T, n)) < 0.5 + gap * (np.arange(n) - 1.5)).astype(float)
+    learner = get_learner("random-walk", scale=scale)
+    learner_reset = learner.reset
+
+    def reset(*args):
+        learner_reset(*args)
+        learner._near = near
+    learner.reset = reset
+    fast, stayed, crossed = _walk_branches(learner, table, R, 5, 32)
+    assert stayed > 10_000 and crossed > (100 if near > 0 else 2000), (stayed, crossed)
+    brute = _brute_random_walk(table, R, scale, 6)
+
+    def close(f1, f2):
+        p = (f1 + f2) / 2
+        return np.all(np.abs(f1 - f2) <= 5 * np.sqrt(2 * p * (1 - p) / R) + 1e-12)
+
+    for t in range(0, T, 16):
+        assert close(np.bincount(fast[t], minlength=n) / R, np.bincount(brute[t], minlength=n) / R), t
+    for t in range(20, T - 12, 50):
+        pf, pb = (np.bincount(x[t] * n + x[t + 12], minlength=n * n) / R for x in (fast, brute))
+        assert close(pf, pb), t
+    cost = lambda a: table[np.arange(T)[:, None], a].sum(axis=0)  # noqa: E731
+    switches = lambda a: (a[1:] != a[:-1]).sum(axis=0)  # noqa: E731
+    from scipy import stats
+    assert stats.ks_2samp(switches(fast), switches(brute)).pvalue > 1e-5
+    assert stats.ks_2samp(cost(fast), cost(brute)).pvalue > 1e-5
+
+
+@compiled
+@pytest.mark.parametrize("shared", [True, False])
+def test_walk_windows_twins_identical(rng, shared):
+    """The compiled sampler and the same source run by the interpreter: same draws, same play
+    (blocks cut mid-window, buffers refilled between calls)."""
+    T, R, n = 70, 6, 5
+    table = (rng.random((T, n) if shared else (T, R, n)) < 0.4 + 0.05 * np.arange(n)).astype(float)
+    plays = []
+    for backend in ("numba", "numpy"):
+        learner = get_learner("random-walk", scale=0.4)
+        learner.reset(n, T, R, np.random.default_rng(2))
+        learner._protocol_replicas = R
+        saved = kernels.walk_windows
+        kernels.walk_windows = kernels.implementation("walk_windows", backend)
+        try:
+            plays.append(np.concatenate([learner.play_block(table[t0:t0 + 13]) for t0 in range(0, T, 13)]))
+        finally:
+            kernels.walk_windows = saved
+    assert np.array_equal(plays[0], plays[1])

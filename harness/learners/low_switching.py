@@ -276,11 +276,20 @@ class RandomWalkPerturbation(_BlockCumulative):
     exact step law of the analysis (Gaussian or +-1/2 steps) could not be
     checked, so no Claim is attached.
 
-    Fast path: ``kernels.random_walk``, the walks and the argmin in one
-    compiled loop (O(n) per replica per round: every perturbed score moves
-    every round). Both paths draw n normals per replica per round in
-    time-major order and add them in the same order, so they give identical
-    play from the same generator.
+    How both paths play it (``kernels.walk_windows``): each step is Gaussian,
+    so each walk is a Brownian motion seen at whole times. Rounds are cut
+    into windows of up to 32 rounds; at a window start the walks of actions
+    whose perturbed score is near the leader's are drawn step by step, and
+    for every other action only the window's end point and whether its
+    Brownian bridge comes down to a level it would need to reach to lead
+    (probability exp(-2 (z - b)(c - b) / (scale^2 length))); if it does, it is
+    drawn from the first time it touches the level (an inverse Gaussian time
+    change) to the window's end. The played action is exactly the argmin of
+    the definition above, with typically one or two walks drawn per round
+    instead of n. ``tests/test_fast_kernels.py`` holds the sampler to a
+    direct step-by-step simulation. Both paths consume the same draws in the
+    same order (normals and uniforms from two generators spawned at reset),
+    so they give identical play.
     """
 
     def __init__(self, scale=1.0):
@@ -288,14 +297,39 @@ class RandomWalkPerturbation(_BlockCumulative):
 
     def reset(self, n_actions, horizon, replicas, rng):
         super().reset(n_actions, horizon, replicas, rng)
+        self._t = 0
         self._z = np.zeros((replicas, n_actions))
+        self._wlen = max(1, min(32, 4096 // n_actions))
+        self._buf = np.zeros((replicas, self._wlen + 1, n_actions))
+        self._first = np.zeros((replicas, n_actions), dtype=np.int64)
+        self._drawn = np.zeros((replicas, n_actions), dtype=np.int64)
+        self._endz = np.zeros((replicas, n_actions))
+        self._window = np.zeros(2, dtype=np.int64)
+        self._near = kernels.WALK_NEAR  # which walks are drawn step by step: cost only, never the law
+        self._need = (replicas * n_actions * (self._wlen + 2), replicas * 2 * n_actions)
+        normal_rng, uniform_rng = rng.spawn(2)
+        self._normals = kernels.NormalStream(normal_rng, chunk=max(1 << 16, self._need[0]))
+        self._uniforms = kernels.UniformStream(uniform_rng, chunk=max(1 << 12, self._need[1]))
+
+    def _play(self, before):
+        out = np.empty(before.shape[:2], dtype=np.int64)
+        s = 0
+        while s < before.shape[0]:  # the kernel stops before a window start when its buffers run low
+            self._normals.reserve(self._need[0])
+            self._uniforms.reserve(self._need[1])
+            s = kernels.walk_windows(before, s, out, self._t, self._wlen, float(self.scale), self._near, self._z,
+                                     self._buf, self._first, self._drawn, self._endz, self._window,
+                                     self._normals.buffer,
+                                     self._normals.position, self._uniforms.buffer, self._uniforms.position)
+        self._t += before.shape[0]
+        return out
 
     def act(self):
-        self._z = self._z + self.scale * self._rng.standard_normal((self._replicas, self._n))
-        return np.argmin(self._cum + self._z, axis=1).astype(np.int64)
+        before = np.broadcast_to(self._cum, (self._replicas, self._n))[None]
+        return self._play(before)[0]
 
     def play_block(self, losses):
-        return kernels.random_walk(self._before(losses), self._z, self.scale, self._rng)
+        return self._play(self._before(losses))
 
 
 # -- multiplicative-weights FTPL -------------------------------------------------------------
