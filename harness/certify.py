@@ -514,7 +514,7 @@ class _Group:
                     s.used = int(hits[0]) + 1 if hits.size else self.played
                     s.verdict = "fail" if hits.size else "pass"
                     s.test = stats.rate_sequence(values[:s.used] > s.bound, _prior_centre(s.claim),
-                                                 self.cell_confidence)
+                                                 self.cell_confidence, stop=False)
             else:
                 lo, hi = metric_range(s.claim.metric, self.horizon, self.switching_cost)
                 hi = max(hi, lo + 1.0)  # T = 1 leaves switches no room; any width keeps the test valid

@@ -130,7 +130,8 @@ def _log_mixture(successes, trials, p, a, b):
             - _special.xlogy(successes, p) - _special.xlog1py(trials - successes, -p))
 
 
-def rate_sequence(outcomes, threshold: float, confidence: float = 0.95, prior=None) -> SequentialTest:
+def rate_sequence(outcomes, threshold: float, confidence: float = 0.95, prior=None,
+                  stop: bool = True) -> SequentialTest:
     r"""Anytime-valid test of a Bernoulli rate against ``threshold``, stopping at the first decision.
 
     With S_t successes in t trials and a Beta(a, b) prior,
@@ -149,6 +150,9 @@ def rate_sequence(outcomes, threshold: float, confidence: float = 0.95, prior=No
     is <= threshold) implies M_t(rate) >= M_t(threshold) >= 1/alpha, so each
     has probability at most alpha = 1 - confidence, and at the threshold
     itself both together have at most alpha: one alpha buys both directions.
+
+    ``stop=False`` reads every observation and reports C_n at the end (a
+    fixed time is a stopping time too, so it is as valid).
     """
     x = np.asarray(outcomes)
     if x.dtype != bool:
@@ -168,7 +172,7 @@ def rate_sequence(outcomes, threshold: float, confidence: float = 0.95, prior=No
     trials = np.arange(1, available + 1)
     successes = np.cumsum(x)
     evidence = _log_mixture(successes, trials, threshold, a, b)
-    hits = np.flatnonzero(evidence >= level)
+    hits = np.flatnonzero(evidence >= level) if stop else np.flatnonzero(evidence[-1:] >= level) + available - 1
     n = int(hits[0]) + 1 if hits.size else available
     k = int(successes[n - 1])
     decision = "undecided" if not hits.size else ("above" if k > threshold * n else "below")
@@ -241,8 +245,23 @@ def mean_sequence(values, threshold: float, low: float, high: float, confidence:
                               available=0)
     x = (v - low) / width
     theta = (threshold - low) / width
-    level = math.log(2.0 / (1.0 - confidence))
-    t = np.arange(1, available + 1, dtype=float)
+    lower, upper = _mean_bounds(x, math.log(2.0 / (1.0 - confidence)), truncation)
+    above = np.flatnonzero(lower > theta)
+    below = np.flatnonzero(upper < theta)
+    first = min(above[0] if above.size else available, below[0] if below.size else available)
+    decided = first < available
+    n = int(first) + 1 if decided else available
+    decision = "undecided" if not decided else ("above" if above.size and above[0] == first else "below")
+    return SequentialTest(estimate=float(v[:n].mean()), low=low + width * float(lower[n - 1]),
+                          high=low + width * float(upper[n - 1]), confidence=confidence, method=MEAN_METHOD,
+                          reference=MEAN_REFERENCE, threshold=threshold, decision=decision, n=n,
+                          available=available)
+
+
+def _mean_bounds(x: np.ndarray, level: float, truncation: float) -> tuple[np.ndarray, np.ndarray]:
+    """Running-intersection PrPl-EB bounds for x in [0, 1] at every t (see :func:`mean_sequence`);
+    ``level`` = ln(2/alpha)."""
+    t = np.arange(1, x.size + 1, dtype=float)
     mu = (0.5 + np.cumsum(x)) / (t + 1)
     sigma2 = (0.25 + np.cumsum((x - mu) ** 2)) / (t + 1)
     mu_prev = np.concatenate(([0.5], mu[:-1]))
@@ -254,13 +273,43 @@ def mean_sequence(values, threshold: float, low: float, high: float, confidence:
     margin = (level + np.cumsum((x - mu_prev) ** 2 * psi)) / weight
     lower = np.maximum.accumulate(np.clip(centre - margin, 0.0, 1.0))
     upper = np.minimum.accumulate(np.clip(centre + margin, 0.0, 1.0))
-    above = np.flatnonzero(lower > theta)
-    below = np.flatnonzero(upper < theta)
-    first = min(above[0] if above.size else available, below[0] if below.size else available)
-    decided = first < available
-    n = int(first) + 1 if decided else available
-    decision = "undecided" if not decided else ("above" if above.size and above[0] == first else "below")
-    return SequentialTest(estimate=float(v[:n].mean()), low=low + width * float(lower[n - 1]),
-                          high=low + width * float(upper[n - 1]), confidence=confidence, method=MEAN_METHOD,
-                          reference=MEAN_REFERENCE, threshold=threshold, decision=decision, n=n,
-                          available=available)
+    return lower, upper
+
+
+def fixed_sample_size(threshold: float, rate: float, confidence: float = 0.95, power: float = 0.9,
+                      limit: int = 10_000_000) -> int:
+    """Smallest N at which the exact one-sided binomial test of rate = threshold,
+    at level 1 - confidence, detects ``rate`` with probability at least ``power``.
+
+    The test rejects "rate <= threshold" when K >= c_N (c_N the smallest count
+    with P[Bin(N, threshold) >= c_N] <= alpha) if ``rate`` > threshold, and
+    "rate >= threshold" when K <= c_N (the largest count with
+    P[Bin(N, threshold) <= c_N] <= alpha) otherwise. Power is not monotone in
+    N (the sawtooth of discrete tests), so every N up to the first that
+    reaches ``power`` is checked. This is the fixed-sample design the
+    sequential tests are compared with (common practice).
+    """
+    threshold = validate.real("threshold", threshold, low=0.0, high=1.0, low_open=True, high_open=True)
+    rate = validate.real("rate", rate, low=0.0, high=1.0)
+    confidence = validate.real("confidence", confidence, low=0.0, high=1.0, low_open=True, high_open=True)
+    power = validate.real("power", power, low=0.0, high=1.0, low_open=True, high_open=True)
+    if rate == threshold:
+        raise ConfigError("rate: must differ from threshold; no test has power at the threshold itself")
+    alpha = 1.0 - confidence
+
+    def powers(ns):
+        if rate > threshold:
+            k = _st.binom.isf(alpha, ns, threshold)          # P[K > k] <= alpha
+            k = np.where(_st.binom.sf(k - 1, ns, threshold) <= alpha, k - 1, k)  # isf may be one step high
+            return _st.binom.sf(k, ns, rate)
+        k = _st.binom.ppf(alpha, ns, threshold)              # smallest k with P[K <= k] >= alpha
+        k = np.where(_st.binom.cdf(k, ns, threshold) <= alpha, k, k - 1)
+        return _st.binom.cdf(k, ns, rate)
+
+    hi = 1
+    while powers(np.array([hi]))[0] < power:
+        hi *= 2
+        if hi > limit:
+            raise ConfigError(f"power: not reached with up to {limit} trials")
+    ns = np.arange(1, hi + 1)
+    return int(ns[np.argmax(powers(ns) >= power)])
