@@ -808,6 +808,10 @@ def _read_certificate(data, source) -> Certificate:
         raise ConfigError(f"{source}: must hold a JSON object; save certificates with Certificate.save")
     if data.get("format") != FORMAT:
         raise ConfigError(f"{source}: format: not a boundbreaker certificate (expected format {FORMAT!r})")
+    extra = set(data) - set(_TOP_TYPES) - {"counts"}  # counts are derived from the cells
+    if extra:
+        raise ConfigError(f"{source}: {sorted(extra)[0]}: unknown field; the file was edited or comes from "
+                          f"another version")
     values = {}
     for key, want in _TOP_TYPES.items():
         if key not in data:

@@ -201,6 +201,7 @@ MALFORMED = [
     (("verdict",), "pass", "verdict: says 'pass' but its cells give 'fail'"),
     (("seed",), _DELETE, "seed: missing"),
     (("cells",), {}, "cells: must be list"),
+    (("surprise",), 1, "surprise: unknown field"),
 ]
 
 
