@@ -61,6 +61,7 @@ import numpy as np
 
 from . import stats, validate
 from .claims import Claim, metric_range
+from .config import int_list, n_jobs as config_n_jobs
 from .errors import ConfigError
 from .runner import DEFAULT_CHUNK, _check_adversary, _check_learner, play_chunk, versions
 
@@ -279,15 +280,14 @@ def certify(learner, claims, adversaries, horizons, n_actions, confidence=0.95, 
     claims = _claims(learner, claims)
     adversaries = _adversaries(adversaries)
     labels = _labels(labels, adversaries)
-    horizons = _ints("horizons", horizons, minimum=1)
-    n_actions = _ints("n_actions", n_actions, minimum=2)
+    horizons = int_list("horizons", horizons, minimum=1)
+    n_actions = int_list("n_actions", n_actions, minimum=2)
     confidence = validate.real("confidence", confidence, low=0.0, high=1.0, low_open=True, high_open=True)
     max_replicas = validate.positive_int("max_replicas", max_replicas)
     seed = validate.nonneg_int("seed", seed)
     chunk = validate.positive_int("chunk", chunk)
     switching_cost = validate.real("switching_cost", switching_cost, low=0.0)
-    if isinstance(n_jobs, bool) or not isinstance(n_jobs, int) or n_jobs == 0:
-        raise ConfigError(f"n_jobs: must be a non-zero integer (-1 = all cores), got {n_jobs!r}")
+    n_jobs = config_n_jobs("n_jobs", n_jobs)
 
     groups = []
     for a, adversary in enumerate(adversaries):
@@ -392,22 +392,6 @@ def adversary_label(spec: dict) -> str:
     params = ", ".join(f"{k}={v}" for k, v in (spec.get("params") or {}).items())
     name = spec.get("name") or str(spec.get("class", "?")).rpartition(":")[2]
     return f"{name}({params})"
-
-
-def _ints(field_name, values, minimum) -> tuple:
-    if isinstance(values, (int, np.integer)) and not isinstance(values, bool):
-        values = [values]
-    try:
-        values = list(values)
-    except TypeError:
-        raise ConfigError(f"{field_name}: give an integer or a list of them, got {values!r}") from None
-    if not values:
-        raise ConfigError(f"{field_name}: the list is empty; give at least one value")
-    out = tuple(validate.positive_int(f"{field_name}[{i}]", v, minimum=minimum) for i, v in enumerate(values))
-    for v in out:
-        if out.count(v) > 1:
-            raise ConfigError(f"{field_name}: {v} appears twice; list each value once")
-    return out
 
 
 def _battery(learner, claims, adversaries, labels, horizons, n_actions, confidence, max_replicas, seed,

@@ -190,7 +190,8 @@ def _positive(key, value):
     return validate.positive_int(key, value)
 
 
-def _n_jobs(key, value):
+def n_jobs(key, value) -> int:
+    """A joblib job count: a non-zero integer, -1 for all cores."""
     if isinstance(value, bool) or not isinstance(value, int) or value == 0:
         raise ConfigError(f"{key}: must be a non-zero integer (-1 = all cores), got {value!r}")
     return value
@@ -206,17 +207,23 @@ def _params(key, value):
     return dict(value)
 
 
+def int_list(key, values, minimum: int) -> tuple:
+    """An integer or a non-empty list of distinct integers >= minimum, as a tuple."""
+    if isinstance(values, (int, np.integer)) and not isinstance(values, bool):
+        values = [values]
+    if isinstance(values, range):
+        values = list(values)
+    if not isinstance(values, (list, tuple)) or not values:
+        raise ConfigError(f"{key}: must be an integer or a non-empty list of integers, got {values!r}")
+    out = tuple(validate.positive_int(f"{key}[{i}]", v, minimum=minimum) for i, v in enumerate(values))
+    for v in out:
+        if out.count(v) > 1:
+            raise ConfigError(f"{key}: {v} appears twice; list each value once")
+    return out
+
+
 def _int_list(minimum):
-    def check(key, value):
-        values = [value] if isinstance(value, int) and not isinstance(value, bool) else value
-        if not isinstance(values, list) or not values:
-            raise ConfigError(f"{key}: must be an integer or a non-empty list of integers, got {value!r}")
-        out = tuple(validate.positive_int(f"{key}[{i}]", v, minimum=minimum) for i, v in enumerate(values))
-        for v in out:
-            if out.count(v) > 1:
-                raise ConfigError(f"{key}: {v} appears twice; list each value once")
-        return out
-    return check
+    return lambda key, value: int_list(key, value, minimum)
 
 
 def _cost(key, value):
@@ -255,7 +262,7 @@ SCHEMA = {
         "seed": (_seed, 0),
         "confidence": (_confidence, 0.95),
         "max_replicas": (_positive, 20000),
-        "n_jobs": (_n_jobs, 1),
+        "n_jobs": (n_jobs, 1),
         "use_learner_claims": (_bool, False),
     }, {}),
     "learner": ({"name": (_str, REQUIRED), "params": (_params, {})}, REQUIRED),

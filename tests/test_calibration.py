@@ -73,7 +73,8 @@ def test_power_at_twice_and_half_delta(rate, right):
 def test_sequential_uses_fewer_replicas_than_the_fixed_design_of_equal_power():
     """At 2*delta the sequential test's mean replica count is below the exact fixed-sample binomial test
     of the same power and level (fixed_sample_size, checked against scipy.stats.binomtest); 300 fixed-seed
-    streams, the slow study gives a ratio near 0.7 here."""
+    streams; the slow study gives a mean of 384 replicas against 1016 for the fixed design of power
+    0.9995 (and 435 for power 0.9)."""
     confidence = bonferroni(0.95, 20)
     out = stream_study(0.10, 0.05, confidence, 20_000, 300, seed=13)
     power = min(out["fail"] / out["runs"], 0.999)
