@@ -613,12 +613,10 @@ def replay_replica(cell, learner, adversary=None, which: int = 0) -> float:
 def build_from_spec(spec: dict, kind: str):
     """Rebuild a learner or adversary from its spec (registry name, else ``module:Class``)."""
     if kind == "adversary":
-        import adversaries as registry
-        getter = registry.get
-    else:
-        from .learners import get as getter
-    name = spec.get("name") or spec.get("class")
-    return getter(name, **(spec.get("params") or {}))
+        import adversaries
+        return adversaries.from_spec({k: spec[k] for k in ("name", "class", "params") if k in spec})
+    from .learners import get
+    return get(spec.get("name") or spec.get("class"), **(spec.get("params") or {}))
 
 
 # -- output ---------------------------------------------------------------------------------

@@ -251,3 +251,17 @@ def test_bound_expressions_cannot_execute_code(tmp_path, payload):
     with pytest.raises(ConfigError, match=r"claims\[0\]\.bound: .*(not allowed|unknown name)"):
         load_campaign(_write(tmp_path, text))
     assert not flag.exists()
+
+
+def test_composite_adversaries_load_and_certify(tmp_path):
+    """Campaign files name composites the way the adversaries package documents (nested specs)."""
+    from harness.certify import certify_campaign
+
+    text = GOOD.replace('[[adversaries]]\nname = "alternating"\nlabel = "flapping"',
+                        '[[adversaries]]\nname = "concat"\nlabel = "mixed"\nparams.parts = ["alternating", '
+                        '{ name = "bernoulli", params = { p = 0.3 } }]')
+    c = load_campaign(_write(tmp_path, text.replace("max_replicas = 500", "max_replicas = 256")))
+    assert c.adversary_specs[1]["label"] == "mixed"
+    cert = certify_campaign(c)
+    assert len(cert.cells) == 16 and {cell.adversary_label for cell in cert.cells} == {
+        "bernoulli(p=0.5, shared=False)", "mixed"}
