@@ -502,7 +502,8 @@ class _Group:
             else:
                 lo, hi = metric_range(s.claim.metric, self.horizon, self.switching_cost)
                 hi = max(hi, lo + 1.0)  # T = 1 leaves switches no room; any width keeps the test valid
-                test = stats.mean_sequence(values, s.bound, lo, hi, self.cell_confidence)
+                # float sums can overshoot the exact range by an ulp
+                test = stats.mean_sequence(np.clip(values, lo, hi), s.bound, lo, hi, self.cell_confidence)
                 if test.decision != "undecided" or final:
                     s.verdict = {"above": "fail", "below": "pass"}.get(test.decision, "inconclusive")
                     s.test, s.used = test, test.n
