@@ -270,7 +270,7 @@ def test_bad_arguments_are_one_line_errors(change, message):
 
 def test_learner_without_claims_needs_some():
     with pytest.raises(ConfigError, match="carries none"):
-        certify(get_learner("hedge"), None, "bernoulli", 10, 2)
+        certify(CoinSwitch(0.1), None, "bernoulli", 10, 2)
 
 
 # -- assert_claim ------------------------------------------------------------------------------------
