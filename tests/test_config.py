@@ -261,3 +261,11 @@ def test_composite_adversaries_load_and_certify(tmp_path):
     cert = certify_campaign(c)
     assert len(cert.cells) == 16 and {cell.adversary_label for cell in cert.cells} == {
         "bernoulli(p=0.5, shared=False)", "mixed"}
+
+
+def test_hedges_own_claims_join_a_campaign(tmp_path):
+    text = GOOD.replace("n_jobs = 1", "n_jobs = 1\nuse_learner_claims = true").replace(
+        'params = { eta = 0.05 }', "")
+    names = [c.name for c in load_campaign(_write(tmp_path, text)).claims]
+    assert names[:2] == ["regret-hp", "few-switches"] and len(names) == 4
+    assert any("expected regret" in n for n in names[2:])
