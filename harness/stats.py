@@ -313,3 +313,44 @@ def fixed_sample_size(threshold: float, rate: float, confidence: float = 0.95, p
             raise ConfigError(f"power: not reached with up to {limit} trials")
     ns = np.arange(1, hi + 1)
     return int(ns[np.argmax(powers(ns) >= power)])
+
+
+# -- quantiles -----------------------------------------------------------------------
+
+QUANTILE_METHOD = "order-statistic interval (distribution-free, binomial counts)"
+QUANTILE_REFERENCE = ("Thompson (1936), Ann. Math. Statist. 7:122-128; Conover (1999), Practical Nonparametric "
+                      "Statistics, 3rd ed., Section 3.2")
+
+
+def quantile_interval(values, q: float, confidence: float = 0.95, alternative: str = "two-sided") -> Interval:
+    """Distribution-free confidence interval for the q-quantile from i.i.d. values.
+
+    With X_(1) <= ... <= X_(N) sorted and B ~ Binomial(N, q), the lower end is
+    X_(l) with l the smallest k such that P[B <= k] >= a (a = 1 - confidence,
+    halved when two-sided), and the upper end is X_(u + 1) with u the
+    smallest k such that P[B > k] <= a. Then P[X_(l) > xi_q] < a and
+    P[X_(u+1) < xi_q] <= a for every distribution, continuous or not
+    (Thompson 1936; Conover 1999, Section 3.2). These are the indices
+    ``scipy.stats.quantile_test(...).confidence_interval()`` uses; where
+    there are too few values for an end, it is -inf or +inf (scipy gives
+    nan). ``estimate`` is the sample quantile ``numpy.quantile(values, q,
+    method="inverted_cdf")`` (an order statistic, like the ends).
+    """
+    x = np.sort(np.asarray(values, dtype=float).ravel())
+    if x.size == 0 or not np.all(np.isfinite(x)):
+        raise ConfigError("values: give at least one finite value")
+    q = validate.real("q", q, low=0.0, high=1.0, low_open=True, high_open=True)
+    confidence = validate.real("confidence", confidence, low=0.0, high=1.0, low_open=True, high_open=True)
+    validate.choice("alternative", alternative, ALTERNATIVES)
+    n = x.size
+    tail = (1.0 - confidence) / (2 if alternative == "two-sided" else 1)
+    dist = _st.binom(n, q)
+    low, high = -math.inf, math.inf
+    if alternative in ("two-sided", "greater"):
+        k = int(dist.ppf(tail)) - 1          # 0-based index of X_(l)
+        low = float(x[k]) if k >= 0 else -math.inf
+    if alternative in ("two-sided", "less"):
+        k = int(dist.isf(tail))               # 0-based index of X_(u+1)
+        high = float(x[k]) if k < n else math.inf
+    return Interval(estimate=float(np.quantile(x, q, method="inverted_cdf")), low=low, high=high,
+                    confidence=confidence, method=f"{QUANTILE_METHOD} ({alternative})", reference=QUANTILE_REFERENCE)
