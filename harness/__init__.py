@@ -5,6 +5,7 @@ The public names (see DEVELOPERS.md and the design contract):
 
     from harness import Learner, Adversary, History, per_replica, run, RunResult
     from harness import Claim, certify, Certificate
+    from harness import landscape
 """
 
 from .errors import AdversaryFault, BoundbreakerError, ConfigError, LearnerFault
@@ -12,6 +13,7 @@ from .protocol import Adversary, History, Learner, per_replica
 from .runner import RunResult, run
 from .claims import Claim
 from .certify import Certificate, certify
+from .landscape import landscape
 
 __version__ = "0.1.0"
 
@@ -19,4 +21,5 @@ __all__ = [
     "Learner", "Adversary", "History", "per_replica", "run", "RunResult",
     "BoundbreakerError", "ConfigError", "LearnerFault", "AdversaryFault",
     "Claim", "certify", "Certificate",
+    "landscape",
 ]
