@@ -268,10 +268,10 @@ def _cmd_report(args) -> int:
     limit = DEFAULT_LIMIT if args.replay_limit is None else args.replay_limit
     if limit < 1:
         raise ConfigError(f"--replay-limit: must be a positive number of replicas, got {limit}")
-    cert = Certificate.load(args.certificate)
     out = args.out or os.path.dirname(os.path.abspath(args.certificate))
     if os.path.exists(out) and not os.path.isdir(out):
         raise ConfigError(f"--out {out}: is a file; give a directory")
+    cert = Certificate.load(args.certificate)
     for path in write_report(cert, out, replay=not args.no_replay, limit=limit, n_jobs=args.jobs).values():
         print(f"wrote {path}")
     return EXIT_PASS
