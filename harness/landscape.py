@@ -287,7 +287,11 @@ class Landscape:
         return out
 
     def fit(self, learner: str, adversary: str = "worst") -> Fit:
-        return next(f for f in self.fits if f.learner == learner and f.adversary == adversary)
+        for f in self.fits:
+            if f.learner == learner and f.adversary == adversary:
+                return f
+        raise ConfigError(f"fit: no series ({learner!r}, {adversary!r}); learners are {', '.join(self.learners)}, "
+                          f"adversaries {', '.join(self.adversaries)} or 'worst'")
 
     def to_dict(self) -> dict:
         return {
@@ -555,7 +559,7 @@ def figure(landscapes, mode: str = "regret"):
     validate.choice("mode", mode, ("regret", "cost"))
     landscapes = list(landscapes)
     entries = max(1 + (len(ls.learners) * (len(ls.adversaries) if mode == "regret" else 1)) for ls in landscapes)
-    legend_h = 0.55 + 0.15 * entries
+    legend_h = 0.4 + 0.14 * entries
     height = 4.2 + legend_h
     fig = new_figure(6.2 * len(landscapes), height)
     axes = fig.subplots(1, len(landscapes), squeeze=False)[0]
@@ -600,18 +604,29 @@ def _regret_panel(ax, ls, colours, markers):
             _bars(ax, [p.budget for p in ls.series(learner, adv)], ls.series(learner, adv), colours[learner],
                   markers[j % len(markers)], "-" if j == 0 else "--", f"{learner} vs {adv}: slope {slope}",
                   filled=(j == 0))
-    ax.set_xscale("log", base=2)
-    ax.set_yscale("log")
-    ax.set_xlabel("switching budget S", fontsize=8.5)
-    ax.set_ylabel(f"{ls.quantile:g}-quantile of regret", fontsize=8.5)
-    ax.set_title(f"{'experts' if ls.feedback == 'full' else 'bandits'}: T={ls.horizon}, n={ls.n_actions}, "
-                 f"{ls.points[0].replicas} replicas per point, {ls.confidence:.0%} intervals", fontsize=9)
-    ax.grid(True, which="both", color="#eeeeee", linewidth=0.6)
-    ax.tick_params(labelsize=7.5)
     note = ("slopes: below knee/2 / above 2 knee; fitted knee" if k is not None else "slope over all S")
     styles = "; filled = first adversary, open = the others" if len(ls.adversaries) > 1 else ""
+    _log_axes(ax, "switching budget S", f"{ls.quantile:g}-quantile of regret",
+              f"{_kind(ls)}: T={ls.horizon}, n={ls.n_actions}, {ls.points[0].replicas} replicas per point, "
+              f"{ls.confidence:.0%} intervals",
+              f"{note}; reference slopes {'-1 / 0' if k is not None else '-1/2'}{styles}")
+    ax.set_xscale("log", base=2)
+
+
+def _kind(ls) -> str:
+    return "experts" if ls.feedback == "full" else "bandits"
+
+
+def _log_axes(ax, xlabel, ylabel, title, legend_title=None):
+    ax.set_xscale("log")
+    ax.set_yscale("log")
+    ax.set_xlabel(xlabel, fontsize=8.5)
+    ax.set_ylabel(ylabel, fontsize=8.5)
+    ax.set_title(title, fontsize=9)
+    ax.grid(True, which="both", color="#eeeeee", linewidth=0.6)
+    ax.tick_params(labelsize=7.5)
     ax.legend(fontsize=6.6, loc="upper center", bbox_to_anchor=(0.5, -0.1), frameon=False, ncol=1,
-              title=f"{note}; reference slopes {'-1 / 0' if k is not None else '-1/2'}{styles}", title_fontsize=7)
+              title=legend_title, title_fontsize=7)
 
 
 def _cost_panel(ax, ls, colours):
@@ -629,15 +644,8 @@ def _cost_panel(ax, ls, colours):
         for c in pts:
             ax.annotate(f"S={c.budget}", (c.cost, c.estimate), xytext=(3, -9), textcoords="offset points",
                         fontsize=6, color=colours[learner])
-    ax.set_xscale("log")
-    ax.set_yscale("log")
-    ax.set_xlabel("cost C per switch", fontsize=8.5)
-    ax.set_ylabel(f"min over S of the {ls.quantile:g}-quantile of regret + C x switches", fontsize=8.5)
-    ax.set_title(f"{'experts' if ls.feedback == 'full' else 'bandits'} with switching costs: T={ls.horizon}, "
-                 f"n={ls.n_actions}", fontsize=9)
-    ax.grid(True, which="both", color="#eeeeee", linewidth=0.6)
-    ax.tick_params(labelsize=7.5)
-    ax.legend(fontsize=6.6, loc="upper center", bbox_to_anchor=(0.5, -0.1), frameon=False, ncol=1)
+    _log_axes(ax, "cost C per switch", f"min over S of the {ls.quantile:g}-quantile of regret + C x switches",
+              f"{_kind(ls)} with switching costs: T={ls.horizon}, n={ls.n_actions}")
 
 
 __all__ = ["landscape", "Landscape", "Point", "Fit", "CostPoint", "LEARNERS", "ADVERSARIES", "Family",

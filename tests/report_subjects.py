@@ -1,11 +1,14 @@
 """A small certificate with every verdict and every kind, shared by the report tests (not part of the product)."""
 
+import functools
+
 from harness import Claim, certify
 from harness.learners import get as get_learner
 
 PUBLISHED = "sqrt(T * ln(n) / 2) + sqrt(T * ln(1 / delta) / 2)"  # Cesa-Bianchi and Lugosi 2006, Corollary 4.2
 
 
+@functools.lru_cache(maxsize=1)  # a Certificate is immutable: certify once per session
 def small_certificate():
     """Hedge (a registry learner, so the report can rebuild it) on T=200, n in {2, 3}:
 

@@ -62,8 +62,8 @@ def test_survival_grid_size(cert):
                                      "verdict": "fail"}]),
               ("b", "x"): (values, [])}
     fig = figures.survival_grid(panels, ["a", "b"], ["x", "y"], "regret")
-    # documented size: (0.6 + 2.8 columns) x (1.4 + 2.0 rows) inches; the missing panel says so
-    assert_drawn(figures.png_bytes(fig), 0.6 + 2.8 * 2, 1.4 + 2.0 * 2)
+    # documented size: (0.6 + 2.6 columns) x (1.4 + 1.85 rows) inches; the missing panel says so
+    assert_drawn(figures.png_bytes(fig), 0.6 + 2.6 * 2, 1.4 + 1.85 * 2)
     assert any(t.get_text() == "not replayed" for ax in fig.axes for t in ax.texts)
 
 
@@ -103,7 +103,7 @@ def test_counterexample_figure_size_and_panels():
     table = (np.random.default_rng(2).random((500, 4)) < 0.4).astype(float)
     fig = figures.counterexample_figure(table, get_learner("hedge"), replicas=3, seed=1,
                                         highlight=(np.zeros(500, dtype=int), "all zeros"))
-    assert_drawn(figures.png_bytes(fig), 10.0, 6.4)
+    assert_drawn(figures.png_bytes(fig), 9.5, 6.0)
     titles = " ".join(ax.get_title(loc="left") for ax in fig.axes)
     assert "loss sequence" in titles and "leading actions" in titles and "action in each round" in titles
     trace_axis = next(ax for ax in fig.axes if "action in each round" in ax.get_title(loc="left"))

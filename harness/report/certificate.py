@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+from pathlib import Path
 
 import numpy as np
 
@@ -55,7 +56,7 @@ def build(cert, dists: Distributions | None, learner=None, learner_problem: str 
         f"confidence: {cert.confidence:g} family-wise ({cert.multiplicity}: {cert.cell_confidence:.6g} per cell)",
         f"seed: {cert.seed}; max replicas per cell: {cert.max_replicas}; chunk: {cert.chunk}; switching cost: "
         f"{cert.switching_cost:g}",
-        f"campaign: {cert.campaign.get('path') or '(built in Python)'}; digest `{cert.digest[:16]}`",
+        f"campaign: {_campaign_text(cert)}; digest `{cert.digest[:16]}`",
         f"created {cert.created}; certification wall time {cert.wall_time_s:.1f} s",
     )))
     _battery(doc, cert)
@@ -71,6 +72,22 @@ def build(cert, dists: Distributions | None, learner=None, learner_problem: str 
     _method(doc, cert)
     _replay(doc, cert, certificate_name)
     return doc
+
+
+def _is_demo(path) -> bool:
+    from ..config import demo_path
+
+    try:
+        return Path(path).resolve() == demo_path().resolve()
+    except OSError:
+        return False
+
+
+def _campaign_text(cert) -> str:
+    path = cert.campaign.get("path")
+    if not path:
+        return "(built in Python)"
+    return f"the bundled demo (`boundbreaker certify --demo`, {Path(path).name})" if _is_demo(path) else path
 
 
 def _battery(doc, cert):
@@ -302,7 +319,8 @@ def _replay(doc, cert, certificate_name):
     path = cert.campaign.get("path")
     items = []
     if path:
-        items.append(f"The whole certification: `boundbreaker certify {path}` (same campaign digest "
+        command = "boundbreaker certify --demo" if _is_demo(path) else f"boundbreaker certify {path}"
+        items.append(f"The whole certification: `{command}` (same campaign digest "
                      f"`{cert.digest[:16]}`, same seed {cert.seed}) gives the same cells; results never depend on "
                      "the number of jobs.")
     items.append(f"This report: `boundbreaker report {certificate_name}` rebuilds it from the certificate (tails "

@@ -40,7 +40,7 @@ VERDICT_COLOURS = {"pass": "#2e7d32", "fail": "#c62828", "inconclusive": "#b7791
 VERDICT_FILLS = {"pass": "#d7ecd9", "fail": "#f8d3d3", "inconclusive": "#fbe9b7"}
 ACTION_COLOURS = ["#4e79a7", "#f28e2b", "#59a14f", "#e15759", "#76b7b2", "#edc948", "#b07aa1", "#ff9da7",
                   "#9c755f", "#bab0ac"]
-PALETTE_COLOURS = 64
+PALETTE_COLOURS = 48
 METRIC_LABELS = {"regret": "regret", "switches": "switches", "cost_regret": "regret + cost x switches"}
 
 
@@ -154,7 +154,7 @@ def survival_plot(ax, values, claims=(), metric: str = "regret", confidence: flo
 
 
 def survival_grid(panels, rows: list, columns: list, metric: str, confidence: float = 0.95,
-                  panel_size=(2.8, 2.0)) -> Figure:
+                  panel_size=(2.6, 1.85)) -> Figure:
     """Small multiples of :func:`survival_plot`, one legend for the figure.
 
     ``panels`` maps (row label, column label) to (values, claims); missing
@@ -164,12 +164,14 @@ def survival_grid(panels, rows: list, columns: list, metric: str, confidence: fl
     w, h = panel_size
     fig = new_figure(0.6 + w * len(columns), 1.4 + h * len(rows))
     axes = fig.subplots(len(rows), len(columns), squeeze=False)
-    styles = {}
+    styles, marked = {}, set()
     for _, claims in panels.values():
         for c in claims:
             k = len(styles)
             styles.setdefault(_field(c, "name"), (CLAIM_STYLES[k % len(CLAIM_STYLES)],
                                                   CLAIM_MARKERS[k % len(CLAIM_MARKERS)]))
+            if _field(c, "kind") == "high_probability":
+                marked.add(_field(c, "name"))
     for i, r in enumerate(rows):
         for j, c in enumerate(columns):
             ax = axes[i][j]
@@ -193,8 +195,8 @@ def survival_grid(panels, rows: list, columns: list, metric: str, confidence: fl
     fig.legend(handles=basics, loc="upper center", ncol=len(basics), fontsize=7, frameon=False,
                bbox_to_anchor=(0.5, top))
     if styles:
-        lines = [Line2D([], [], color="#546e7a", linestyle=line, marker=marker, markersize=4, label=name)
-                 for name, (line, marker) in styles.items()]
+        lines = [Line2D([], [], color="#546e7a", linestyle=line, marker=marker if name in marked else None,
+                        markersize=4, label=name) for name, (line, marker) in styles.items()]
         fig.legend(handles=lines, loc="upper center", ncol=min(len(lines), 5), fontsize=7, frameon=False,
                    bbox_to_anchor=(0.5, top - 0.22 / fig.get_figheight()), title="claims (line style)",
                    title_fontsize=7)
@@ -363,7 +365,7 @@ def play_sequence(losses, learner, replicas: int = 4, seed: int = 0):
     return actions, regret, switches
 
 
-def action_traces(ax, actions, n_actions: int, labels=None, max_columns: int = 1600):
+def action_traces(ax, actions, n_actions: int, labels=None, max_columns: int = 800):
     """Each replica's action over time as a coloured strip (one row per replica)."""
     actions = np.asarray(actions)
     T, replicas = actions.shape
@@ -374,20 +376,20 @@ def action_traces(ax, actions, n_actions: int, labels=None, max_columns: int = 1
               extent=(0, T, replicas - 0.5, -0.5))
     ax.set_yticks(range(replicas))
     ax.set_yticklabels(labels if labels is not None else [f"replica {r}" for r in range(replicas)], fontsize=6.5)
-    ax.set_title("the learner's action in each round (colour = action)" + (f", every {k}th round" if k > 1 else ""),
+    ax.set_title("the learner's action in each round (colour = action)" + (f"; one round in {k} shown" if k > 1 else ""),
                  fontsize=8, loc="left")
     ax.tick_params(labelsize=7)
     return ax
 
 
 def counterexample_figure(losses, learner, replicas: int = 4, seed: int = 0, title: str | None = None,
-                          highlight=None, size=(10.0, 6.4)) -> Figure:
+                          highlight=None, size=(9.5, 6.0)) -> Figure:
     """Three stacked panels for a (T, n) loss sequence: heat strip, leader gaps, action traces.
 
     The learner plays the sequence ``replicas`` times (one shared sequence,
     fresh randomness per replica, from ``seed``). ``highlight`` optionally
     adds a first trace row: ``(actions (T,), label)``, e.g. the recorded
-    replica that violated a claim. Size: ``size`` inches (default 10 x 6.4).
+    replica that violated a claim. Size: ``size`` inches (default 9.5 x 6).
     """
     arr = _check_losses(losses)
     T, n = arr.shape
