@@ -9,10 +9,12 @@ The public names (see DEVELOPERS.md and the design contract):
 from .errors import AdversaryFault, BoundbreakerError, ConfigError, LearnerFault
 from .protocol import Adversary, History, Learner, per_replica
 from .runner import RunResult, run
+from .search import Counterexample, replay, search
 
 __version__ = "0.1.0"
 
 __all__ = [
     "Learner", "Adversary", "History", "per_replica", "run", "RunResult",
     "BoundbreakerError", "ConfigError", "LearnerFault", "AdversaryFault",
+    "search", "Counterexample", "replay",
 ]

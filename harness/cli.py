@@ -156,7 +156,71 @@ def _cmd_bench(args) -> int:
     return EXIT_PASS
 
 
+def _add_search(sub):
+    p = sub.add_parser("search", help="search for a loss sequence that breaks a campaign's claim; save it")
+    p.add_argument("campaign", metavar="CAMPAIGN.toml", help="campaign file ([learner], [[claims]], [grid], [search])")
+    p.add_argument("--claim", help="search only this claim (by name); default: every claim, in order")
+    p.add_argument("--method", choices=["hypothesis", "cem", "random"],
+                   help="search method (default: the campaign's [search] method, else hypothesis)")
+    p.add_argument("--out", default=None, metavar="FILE",
+                   help="where to save a counterexample (default: <campaign name>-counterexample.npz)")
+    p.add_argument("--json", action="store_true", help="print JSON instead of text")
+    p.set_defaults(handler=_cmd_search)
+
+
+def _cmd_search(args) -> int:
+    from .search.campaign import search_campaign
+
+    outcome = search_campaign(args.campaign, claim=args.claim, method=args.method, out=args.out)
+    if args.json:
+        print(json.dumps(outcome.as_dict(), indent=2))
+    else:
+        print(outcome.describe())
+    return EXIT_VIOLATION if outcome.found else EXIT_PASS
+
+
+def _add_replay(sub):
+    p = sub.add_parser("replay", help="rerun a saved counterexample; exit 1 if the learner still breaks the claim")
+    p.add_argument("file", metavar="FILE", help="a counterexample .npz written by `boundbreaker search`")
+    p.add_argument("--learner", help="registry name or module:Class (default: the learner named in the file)")
+    p.add_argument("--learner-param", action="append", metavar="KEY=VALUE", help="learner parameter (repeatable)")
+    p.add_argument("--replicas", type=int, help="replicas (default: as recorded)")
+    p.add_argument("--seed", type=int, help="seed (default: the recorded one, which reproduces the file exactly)")
+    p.add_argument("--json", action="store_true", help="print JSON instead of text")
+    p.set_defaults(handler=_cmd_replay)
+
+
+def _cmd_replay(args) -> int:
+    from .learners import get as get_learner
+    from .search import Counterexample, replay
+    from .search.replay import learner_from_spec
+
+    if args.replicas is not None and args.replicas < 1:
+        raise ConfigError(f"--replicas: must be at least 1, got {args.replicas}")
+    if args.seed is not None and args.seed < 0:
+        raise ConfigError(f"--seed: must be >= 0, got {args.seed}")
+    ce = Counterexample.load(args.file)
+    if args.learner:
+        learner = _named(get_learner, args.learner, params_from(args.learner_param, "--learner-param"),
+                         "--learner", "--learner-param")
+    elif args.learner_param:
+        raise ConfigError("--learner-param: give --learner too (the parameters belong to a named learner)")
+    else:
+        learner = learner_from_spec(ce.learner)
+    result = replay(ce, learner, replicas=args.replicas, seed=args.seed)
+    if args.json:
+        print(json.dumps({"still_violates": result.still_violates, "rate": result.rate, "ci": list(result.ci),
+                          "mean": result.mean, "violations": result.violations, "replicas": result.replicas,
+                          "seed": result.seed, "confidence": result.confidence, "bound": result.bound,
+                          "claim": ce.claim.spec(), "learner": learner.spec(), "evidence": result.evidence},
+                         indent=2, default=str))
+    else:
+        print(result.describe())
+    return EXIT_VIOLATION if result.still_violates else EXIT_PASS
+
+
 COMMANDS = [_add_run, _add_list, _add_bench]
+COMMANDS += [_add_search, _add_replay]
 
 
 def build_parser() -> argparse.ArgumentParser:

@@ -1,0 +1,119 @@
+"""search(method="cem"): the cross-entropy method over the genome space; also plain random sampling.
+
+A candidate is coded by unit coordinates in [0, 1] (segment weights, every
+pattern parameter, cycles, the rest level) and by categorical choices (how
+many segments, which pattern in each slot); the action permutation is
+drawn uniformly and not learned. Generation 0 samples the coordinates
+uniformly and the choices uniformly: that *is* plain random sampling of the
+genome space, which ``method="random"`` keeps doing for the whole budget
+(the baseline the benchmark compares against).
+
+After each generation of ``population`` candidates the ``elite`` fraction
+with the highest screening score refits the sampling law: each coordinate a
+Gaussian (mean and standard deviation of the elites, clipped to [0, 1] when
+sampling, standard deviation kept above ``min_std``), each choice a
+categorical (the elites' frequencies), smoothed with the previous law by
+``smoothing`` (Rubinstein 1999, "The cross-entropy method for combinatorial
+and continuous optimization", Methodology and Computing in Applied
+Probability 1:127-190; smoothing as in de Boer, Kroese, Mannor and
+Rubinstein 2005, "A tutorial on the cross-entropy method", Annals of
+Operations Research 134:19-67).
+
+Every candidate is screened as it is drawn; one that passes screening is
+confirmed at once on fresh replicas with the same acceptance rule as the
+Hypothesis method.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from .genome import MAX_CYCLES, MAX_WEIGHT, PATTERNS, Genome, Segment, expand
+
+_NAMES = list(PATTERNS)
+_WIDTH = max(len(p.params) for p in PATTERNS.values())
+
+
+def _log_int(u: float, high: int) -> int:
+    return int(round(2 ** (min(1.0, max(0.0, u)) * math.log2(high))))
+
+
+class Law:
+    """The sampling law over coded candidates (uniform at first)."""
+
+    def __init__(self, slots: int):
+        self.slots = slots
+        self.count = np.full(slots, 1.0 / slots)                   # number of segments - 1
+        self.pattern = np.full((slots, len(_NAMES)), 1.0 / len(_NAMES))
+        self.dim = slots * (1 + _WIDTH) + 2                        # weights+params per slot, cycles, rest
+        self.mean = np.full(self.dim, 0.5)
+        self.std = None                                            # None: uniform coordinates
+
+    def sample(self, rng: np.random.Generator):
+        count = int(rng.choice(self.slots, p=self.count)) + 1
+        pats = np.array([rng.choice(len(_NAMES), p=self.pattern[s]) for s in range(self.slots)])
+        if self.std is None:
+            units = rng.random(self.dim)
+        else:
+            units = np.clip(self.mean + self.std * rng.standard_normal(self.dim), 0.0, 1.0)
+        return count, pats, units
+
+    def refit(self, elites, smoothing: float, min_std: float):
+        counts = np.array([c for c, _, _ in elites]) - 1
+        pats = np.stack([p for _, p, _ in elites])
+        units = np.stack([u for _, _, u in elites])
+        freq = np.bincount(counts, minlength=self.slots) / len(elites)
+        self.count = smoothing * freq + (1 - smoothing) * self.count
+        for s in range(self.slots):
+            f = np.bincount(pats[:, s], minlength=len(_NAMES)) / len(elites)
+            self.pattern[s] = smoothing * f + (1 - smoothing) * self.pattern[s]
+        prev_std = self.std if self.std is not None else np.full(self.dim, math.sqrt(1 / 12))  # uniform's sd
+        self.mean = smoothing * units.mean(axis=0) + (1 - smoothing) * self.mean
+        self.std = np.maximum(smoothing * units.std(axis=0) + (1 - smoothing) * prev_std, min_std)
+
+
+def decode(count: int, pats: np.ndarray, units: np.ndarray, permutation) -> Genome:
+    """The genome a coded candidate stands for."""
+    segs = []
+    for s in range(count):
+        spec = PATTERNS[_NAMES[int(pats[s])]]
+        block = units[s * (1 + _WIDTH):(s + 1) * (1 + _WIDTH)]
+        weight = _log_int(block[0], MAX_WEIGHT)
+        params = tuple(p.from_unit(u) for p, u in zip(spec.params, block[1:]))
+        segs.append(Segment(spec.name, params, weight))
+    cycles = _log_int(units[-2], MAX_CYCLES)
+    return Genome(tuple(segs), tuple(int(a) for a in permutation), cycles, float(units[-1]))
+
+
+def run(ev, max_examples: int, seed: int, max_confirmations: int, learn: bool = True,
+        population: int = 20, elite: float = 0.2, smoothing: float = 0.7, min_std: float = 0.05,
+        slots: int = 4):
+    """Returns (genome, screen, judgement, confirm_seed, level, evaluations_to_find) or None."""
+    from .evaluate import derived_seed
+
+    rng = np.random.default_rng(derived_seed(seed, 3))
+    law = Law(slots)
+    n_elite = max(2, int(math.ceil(elite * population)))
+    horizon = ev.horizon
+    drawn = 0
+    while drawn < max_examples and len(ev.confirmations) < max_confirmations:
+        scored = []
+        for _ in range(min(population, max_examples - drawn)):
+            coded = law.sample(rng)
+            genome = decode(*coded, rng.permutation(ev.n_actions))
+            drawn += 1
+            before = ev.evaluations
+            screen = ev.screen(genome, genome.key(), lambda g: expand(g, horizon))
+            scored.append((screen.score, coded))
+            if screen.passed and ev.evaluations > before:  # a memo hit was already judged
+                accepted, judgement, cseed, level = ev.confirm(expand(genome, horizon), screen)
+                if accepted:
+                    return genome, screen, judgement, cseed, level, screen.evaluation
+                if len(ev.confirmations) >= max_confirmations:
+                    return None
+        if learn and len(scored) >= n_elite:
+            scored.sort(key=lambda item: item[0], reverse=True)
+            law.refit([coded for _, coded in scored[:n_elite]], smoothing, min_std)
+    return None
