@@ -55,7 +55,28 @@ def _add_run(sub):
     p.add_argument("--jobs", type=int, default=1, help="parallel jobs (-1: all cores)")
     p.add_argument("--switching-cost", type=float, default=0.0)
     p.add_argument("--json", action="store_true", help="print JSON instead of a table")
+    _add_scale_options(p)
     p.set_defaults(handler=_cmd_run)
+
+
+def _add_scale_options(p):
+    p.add_argument("--cluster", metavar="ADDRESS",
+                   help="run chunks on a dask cluster: 'local' or a scheduler address tcp://host:8786")
+    p.add_argument("--checkpoint", metavar="DIR",
+                   help="save finished chunks in DIR; rerunning the same command resumes from them")
+
+
+def _scaled(args):
+    """A context in which the --cluster choice holds (a no-op without it)."""
+    from contextlib import nullcontext
+
+    if not args.cluster:
+        return nullcontext()
+    from .cluster import cluster
+
+    if args.jobs == 1:
+        args.jobs = -1  # a cluster is pointless one chunk at a time
+    return cluster(args.cluster)
 
 
 def _cmd_run(args) -> int:
@@ -76,8 +97,10 @@ def _cmd_run(args) -> int:
     adversary = _named(adversaries.get, args.adversary,
                        params_from(args.adversary_param, "--adversary-param"), "--adversary",
                        "--adversary-param")
-    result = run(learner, adversary, args.horizon, args.actions, replicas=args.replicas, seed=args.seed,
-                 n_jobs=args.jobs, switching_cost=args.switching_cost, progress=True)
+    with _scaled(args):
+        result = run(learner, adversary, args.horizon, args.actions, replicas=args.replicas, seed=args.seed,
+                     n_jobs=args.jobs, switching_cost=args.switching_cost, progress=True,
+                     checkpoint=args.checkpoint)
     if args.json:
         print(json.dumps({"summary": result.summary(), "meta": result.meta}, indent=2))
     else:

@@ -80,12 +80,15 @@ def chunk_seed(seed: int, index: int) -> np.random.SeedSequence:
 
 
 def run(learner, adversary, horizon, n_actions, replicas=1000, seed=0, n_jobs=1,
-        switching_cost=0.0, chunk=DEFAULT_CHUNK, progress=False) -> RunResult:
+        switching_cost=0.0, chunk=DEFAULT_CHUNK, progress=False, checkpoint=None) -> RunResult:
     """Play ``learner`` against ``adversary`` for ``horizon`` rounds, ``replicas`` times.
 
     Chunks of replicas are dispatched with joblib (``n_jobs``; any backend set
-    with ``joblib.parallel_config`` works, dask included). ``progress=True``
-    draws a progress line on stderr when it is a terminal.
+    with ``joblib.parallel_config`` works, dask included: see
+    :mod:`harness.cluster`). ``progress=True`` draws a progress line on stderr
+    when it is a terminal. ``checkpoint=DIR`` saves each finished chunk there
+    and, on a rerun of the same call, resumes from what is saved (see
+    :mod:`harness.checkpoint`).
     """
     horizon = validate.positive_int("horizon", horizon)
     n_actions = validate.positive_int("n_actions", n_actions, minimum=2)
@@ -99,11 +102,28 @@ def run(learner, adversary, horizon, n_actions, replicas=1000, seed=0, n_jobs=1,
     _check_adversary(adversary)
 
     started = time.perf_counter()
-    jobs = [(k, k * chunk, min(replicas, (k + 1) * chunk)) for k in range(math.ceil(replicas / chunk))]
+    bounds = {k: (k * chunk, min(replicas, (k + 1) * chunk)) for k in range(math.ceil(replicas / chunk))}
     regret = np.empty(replicas)
     switches = np.empty(replicas, dtype=np.int64)
-    plan = dict(horizon=horizon, n_actions=n_actions, seed=seed, chunk=chunk)
-    for (k, lo, hi), (reg, sw) in zip(jobs, _dispatch(learner, adversary, plan, jobs, n_jobs, progress)):
+    store, resumed = None, {}
+    if checkpoint is not None:
+        from .checkpoint import ChunkStore
+        identity = {"learner": learner.spec(), "adversary": adversary.spec(), "horizon": horizon,
+                    "n_actions": n_actions, "replicas": replicas, "seed": seed, "chunk": chunk,
+                    "versions": versions()}
+        store = ChunkStore(checkpoint, identity, {k: hi - lo for k, (lo, hi) in bounds.items()})
+        resumed = store.finished()
+    todo = []
+    for k, (lo, hi) in bounds.items():
+        if k in resumed:
+            regret[lo:hi], switches[lo:hi] = resumed[k]
+        else:
+            todo.append((k, hi - lo))
+    plan = dict(horizon=horizon, n_actions=n_actions, seed=seed)
+    for k, reg, sw in _dispatch(learner, adversary, plan, todo, n_jobs, progress):
+        if store is not None:
+            store.save(k, reg, sw)  # at once: an interruption loses no finished chunk
+        lo, hi = bounds[k]
         regret[lo:hi] = reg
         switches[lo:hi] = sw
     meta = {
@@ -112,7 +132,7 @@ def run(learner, adversary, horizon, n_actions, replicas=1000, seed=0, n_jobs=1,
         "learner": learner.spec(), "adversary": adversary.spec(),
         "feedback": learner.feedback, "adaptive": bool(adversary.adaptive),
         "shared_sequence": bool(getattr(adversary, "shared", False)) and not adversary.adaptive,
-        "kernels": kernels.BACKEND, "versions": versions(),
+        "kernels": kernels.BACKEND, "versions": versions(), "resumed_chunks": len(resumed),
         "wall_time_s": time.perf_counter() - started,
     }
     return RunResult(regret=regret, switches=switches, switching_cost=switching_cost, meta=meta)
@@ -228,16 +248,23 @@ def _play_adaptive(learner, adversary, horizon, n_actions, replicas, name, adv_n
 # -- dispatch -----------------------------------------------------------------
 
 
+def _indexed_chunk(learner, adversary, horizon, n_actions, seed, index, replicas):
+    return (index, *play_chunk(learner, adversary, horizon, n_actions, seed, index, replicas))
+
+
 def _dispatch(learner, adversary, plan, jobs, n_jobs, progress):
-    """Yield each chunk's (regret, switches) in chunk order."""
-    calls = ((learner, adversary, plan["horizon"], plan["n_actions"], plan["seed"], k, hi - lo)
-             for k, lo, hi in jobs)
-    if n_jobs == 1 or len(jobs) == 1:
-        results = (play_chunk(*c) for c in calls)
+    """Yield (index, regret, switches) for each (index, size) job as it finishes."""
+    calls = [(learner, adversary, plan["horizon"], plan["n_actions"], plan["seed"], k, size)
+             for k, size in jobs]
+    if not calls:
+        return
+    if n_jobs == 1 or len(calls) == 1:
+        results = (_indexed_chunk(*c) for c in calls)
     else:
         from joblib import Parallel, delayed
-        results = Parallel(n_jobs=n_jobs, return_as="generator")(delayed(play_chunk)(*c) for c in calls)
-    bar = _Progress(len(jobs)) if progress and sys.stderr.isatty() else None
+        results = Parallel(n_jobs=n_jobs, return_as="generator_unordered")(
+            delayed(_indexed_chunk)(*c) for c in calls)
+    bar = _Progress(len(calls)) if progress and sys.stderr.isatty() else None
     for item in results:
         if bar:
             bar.tick()
