@@ -195,3 +195,55 @@ def test_search_runs_inside_a_hypothesis_test(seed):
     found = search(hot_hedge(horizon=200), HEDGE_HP, 200, 2, max_examples=30, replicas=64, seed=seed,
                    patterns=["alternating", "constant"])
     assert found.evaluations >= 1
+
+
+class Tripwire(Learner):
+    """A planted defect: stays on action 0 until it sees a round whose two first losses differ by an
+    amount in (0.2, 0.4); from the next round on it switches every round. Deterministic."""
+
+    def __init__(self):
+        pass
+
+    def reset(self, n_actions, horizon, replicas, rng):
+        self._replicas, self._tripped, self._t = replicas, None, 0
+
+    def _actions(self, steps):
+        t = self._t + np.arange(steps)
+        live = np.zeros(steps, dtype=bool) if self._tripped is None else t > self._tripped
+        return np.where(live, t % 2, 0).astype(np.int64)
+
+    def act(self):
+        return np.repeat(self._actions(1), self._replicas)
+
+    def update(self, actions, losses):
+        self._see(np.asarray(losses)[:1])
+
+    def _see(self, rows):
+        gap = np.abs(rows[:, 0] - rows[:, 1])
+        hit = np.flatnonzero((gap > 0.2) & (gap < 0.4))
+        if self._tripped is None and hit.size:
+            self._tripped = self._t + int(hit[0])
+        self._t += rows.shape[0]
+
+    def play_block(self, losses):
+        rows = losses if losses.ndim == 2 else losses[:, 0, :]
+        out = np.empty((rows.shape[0], self._replicas), dtype=np.int64)
+        for s in range(rows.shape[0]):  # the trip may happen inside the block
+            out[s] = self._actions(1)[0]
+            self._see(rows[s:s + 1])
+        return out
+
+
+def test_shrinking_a_planted_defect_leaves_one_segment():
+    """The tripwire is hit only by rounds with a loss gap in (0.2, 0.4): no plain pattern has one, so
+    generation finds a messy genome and shrinking must reduce it. The shrunk genome has one segment with
+    every parameter but the one that trips the wire at its plain value."""
+    claim = Claim("switches", 10, kind="always", name="at most 10 switches (invented cap)")
+    found = search(Tripwire(), claim, 200, 2, max_examples=200, replicas=4, seed=0)
+    assert found and found.unshrunk is not None
+    g = found.genome
+    assert len(g.segments) == 1 and g.cycles == 1 and g.permutation == (0, 1)
+    assert found.unshrunk.size() > g.size()                   # shrinking did simplify it
+    assert g.segments[0].plainness() <= 1 and g.segments[0].weight == 1
+    gaps = np.abs(found.losses[:, 0] - found.losses[:, 1])
+    assert np.any((gaps > 0.2) & (gaps < 0.4))

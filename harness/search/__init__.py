@@ -23,6 +23,8 @@ candidate seen; a Counterexample also has ``evaluations_to_find``.
 
 from __future__ import annotations
 
+import numpy as np
+
 from .. import validate
 from ..errors import ConfigError
 from ..protocol import Learner
@@ -40,7 +42,7 @@ __all__ = ["search", "Counterexample", "NoCounterexample", "replay", "ReplayResu
 
 def search(learner, claim, horizon, n_actions, max_examples=200, replicas=256, seed=0, method="hypothesis",
            *, confidence=0.95, confirm_replicas=None, switching_cost=0.0, max_segments=4, shrink_budget=None,
-           max_confirmations=5, patterns=None, n_jobs=1):
+           max_confirmations=5, patterns=None, adaptive=None, oblivious=True, plain_first=True, n_jobs=1):
     """Search for a loss sequence on which ``learner`` breaks ``claim``.
 
     Parameters beyond the design contract's: ``confidence`` (the chance of
@@ -49,7 +51,12 @@ def search(learner, claim, horizon, n_actions, max_examples=200, replicas=256, s
     (for cost_regret claims), ``max_segments`` (per genome),
     ``shrink_budget`` (new candidates Hypothesis may play while shrinking,
     default max_examples), ``max_confirmations`` (attempts before giving
-    up), ``patterns`` (restrict the genome patterns), ``n_jobs``.
+    up), ``patterns`` (restrict the genome patterns), ``adaptive``
+    (adaptive adversaries whose parameters are searched too: names, or
+    ``{name: {param: (low, high) | [choices]}}``; see :mod:`.adaptive`),
+    ``oblivious`` (False: search only the adaptive adversaries),
+    ``plain_first`` (hypothesis: try each pattern's plain one-segment genome
+    first), ``n_jobs``.
 
     Returns a :class:`Counterexample` when one is confirmed, else a falsy
     :class:`NoCounterexample` with the evaluations spent and the best
@@ -77,17 +84,24 @@ def search(learner, claim, horizon, n_actions, max_examples=200, replicas=256, s
             raise ConfigError(f"patterns: must be a non-empty list of {', '.join(PATTERNS)}; got {patterns!r}")
     if claim.kind == "expectation":
         _needs_mean_bound()
+    from . import adaptive as adaptive_mod
+    families = adaptive_mod.families(adaptive)
+    oblivious = validate.boolean("oblivious", oblivious)
+    if not oblivious and not families:
+        raise ConfigError("oblivious: False leaves nothing to search; name adaptive adversaries (adaptive=...)")
 
     ev = Evaluator(learner, claim, horizon, n_actions, replicas, confirm_replicas, seed, confidence,
                    switching_cost=switching_cost, n_jobs=n_jobs)
     if method == "hypothesis":
         from . import guided
-        found = guided.run(ev, max_examples, seed, max_segments, shrink_budget, max_confirmations, patterns)
+        found = guided.run(ev, max_examples, seed, max_segments, shrink_budget, max_confirmations, patterns,
+                           families, oblivious, validate.boolean("plain_first", plain_first))
     else:
         from . import cem
         if patterns is not None:
             raise ConfigError("patterns: only method='hypothesis' restricts patterns")
-        found = cem.run(ev, max_examples, seed, max_confirmations, learn=(method == "cem"))
+        found = cem.run(ev, max_examples, seed, max_confirmations, learn=(method == "cem"), families=families,
+                        oblivious=oblivious)
 
     settings = {"max_examples": max_examples, "replicas": replicas, "confirm_replicas": confirm_replicas,
                 "confirmations": len(ev.confirmations), "error_probability": ev.alpha,
@@ -99,17 +113,28 @@ def search(learner, claim, horizon, n_actions, max_examples=200, replicas=256, s
                                 best_score=None if best is None else best[0],
                                 best_rate=None if best is None else best[2].judgement.estimate,
                                 confirmations=len(ev.confirmations), error_probability=ev.alpha)
-    genome, screen, judgement, confirm_seed, level, to_find = found
-    from ..runner import versions
+    cand, screen, judgement, confirm_seed, level, to_find = found
+    from ..runner import DEFAULT_CHUNK, versions
 
+    if isinstance(cand, Genome):
+        genome, record, losses = cand, None, expand(cand, horizon)
+    else:
+        # what the first violating replica of the confirmation run faced, replayed from its chunk
+        replica = int(np.flatnonzero(np.asarray(ev.last_values) > ev.bound)[0]) \
+            if judgement.violations else 0
+        losses = adaptive_mod.realized_losses(learner, cand.build(), horizon, n_actions, confirm_seed, replica,
+                                              judgement.replicas, DEFAULT_CHUNK)
+        spec = cand.build().spec()
+        genome, record = None, {"name": cand.name, "class": spec.get("class"), "params": dict(cand.params),
+                                "replica": replica}
     return Counterexample(
-        losses=expand(genome, horizon), claim=claim, rate=judgement.violations / judgement.replicas,
+        losses=losses, claim=claim, rate=judgement.violations / judgement.replicas,
         ci=judgement.interval, confidence=confidence, violations=judgement.violations,
         replicas=judgement.replicas, learner=learner.spec(), method=method,
         seeds={"search": seed, "screen": screen.seed, "confirm": confirm_seed},
         evidence=judgement.evidence, mean=judgement.estimate if claim.kind == "expectation" else None,
-        genome=genome, evaluations=ev.evaluations, evaluations_to_find=to_find, settings=settings,
-        versions=versions())
+        genome=genome, adversary=record, evaluations=ev.evaluations, evaluations_to_find=to_find,
+        settings=settings, versions=versions(), unshrunk=ev.unshrunk)
 
 
 def _needs_mean_bound():

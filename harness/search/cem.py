@@ -30,7 +30,8 @@ import math
 
 import numpy as np
 
-from .genome import MAX_CYCLES, MAX_WEIGHT, PATTERNS, Genome, Segment, expand
+from . import adaptive
+from .genome import MAX_CYCLES, MAX_WEIGHT, PATTERNS, Genome, Segment
 
 _NAMES = list(PATTERNS)
 _WIDTH = max(len(p.params) for p in PATTERNS.values())
@@ -41,76 +42,101 @@ def _log_int(u: float, high: int) -> int:
 
 
 class Law:
-    """The sampling law over coded candidates (uniform at first)."""
+    """The sampling law over coded candidates (uniform at first).
 
-    def __init__(self, slots: int):
+    A coded candidate is (kind, count, patterns, units): kind 0 is a genome,
+    kind k >= 1 the k-th adaptive family, whose parameters read the last
+    coordinates of ``units``.
+    """
+
+    def __init__(self, slots: int, families=(), oblivious: bool = True):
         self.slots = slots
+        kinds = np.array(([1.0] if oblivious else [0.0]) + [1.0] * len(families))
+        self.kind = kinds / kinds.sum()
         self.count = np.full(slots, 1.0 / slots)                   # number of segments - 1
         self.pattern = np.full((slots, len(_NAMES)), 1.0 / len(_NAMES))
-        self.dim = slots * (1 + _WIDTH) + 2                        # weights+params per slot, cycles, rest
+        self.width = max([len(f.spaces) for f in families], default=0)
+        self.dim = slots * (1 + _WIDTH) + 2 + self.width           # slots, cycles, rest, family params
         self.mean = np.full(self.dim, 0.5)
         self.std = None                                            # None: uniform coordinates
 
     def sample(self, rng: np.random.Generator):
+        kind = 0 if self.kind.size == 1 else int(rng.choice(self.kind.size, p=self.kind))
         count = int(rng.choice(self.slots, p=self.count)) + 1
         pats = np.array([rng.choice(len(_NAMES), p=self.pattern[s]) for s in range(self.slots)])
         if self.std is None:
             units = rng.random(self.dim)
         else:
             units = np.clip(self.mean + self.std * rng.standard_normal(self.dim), 0.0, 1.0)
-        return count, pats, units
+        return kind, count, pats, units
 
     def refit(self, elites, smoothing: float, min_std: float):
-        counts = np.array([c for c, _, _ in elites]) - 1
-        pats = np.stack([p for _, p, _ in elites])
-        units = np.stack([u for _, _, u in elites])
-        freq = np.bincount(counts, minlength=self.slots) / len(elites)
-        self.count = smoothing * freq + (1 - smoothing) * self.count
-        for s in range(self.slots):
-            f = np.bincount(pats[:, s], minlength=len(_NAMES)) / len(elites)
-            self.pattern[s] = smoothing * f + (1 - smoothing) * self.pattern[s]
+        """Move the law toward the elites (choices of genome structure only from genome elites)."""
+        kinds = np.array([k for k, _, _, _ in elites])
+        live = self.kind > 0   # a kind switched off stays off
+        freq = np.bincount(kinds, minlength=self.kind.size) / len(elites)
+        self.kind = np.where(live, smoothing * freq + (1 - smoothing) * self.kind, 0.0)
+        self.kind /= self.kind.sum()
+        genomes = [e for e in elites if e[0] == 0]
+        if genomes:
+            counts = np.array([c for _, c, _, _ in genomes]) - 1
+            pats = np.stack([p for _, _, p, _ in genomes])
+            freq = np.bincount(counts, minlength=self.slots) / len(genomes)
+            self.count = smoothing * freq + (1 - smoothing) * self.count
+            for s in range(self.slots):
+                f = np.bincount(pats[:, s], minlength=len(_NAMES)) / len(genomes)
+                self.pattern[s] = smoothing * f + (1 - smoothing) * self.pattern[s]
+        units = np.stack([u for _, _, _, u in elites])
         prev_std = self.std if self.std is not None else np.full(self.dim, math.sqrt(1 / 12))  # uniform's sd
         self.mean = smoothing * units.mean(axis=0) + (1 - smoothing) * self.mean
         self.std = np.maximum(smoothing * units.std(axis=0) + (1 - smoothing) * prev_std, min_std)
 
 
-def decode(count: int, pats: np.ndarray, units: np.ndarray, permutation) -> Genome:
-    """The genome a coded candidate stands for."""
+def decode(kind: int, count: int, pats: np.ndarray, units: np.ndarray, permutation, families=()):
+    """The candidate (a Genome, or an adaptive adversary) a coded candidate stands for.
+
+    ``units`` holds, in order: one block (weight, parameters) per slot, then
+    cycles, then rest, then the adaptive families' parameters.
+    """
+    slots = pats.size
+    tail = slots * (1 + _WIDTH)
+    if kind > 0:
+        family = families[kind - 1]
+        coords = units[tail + 2:]
+        return adaptive.candidate(family, {s.name: s.from_unit(u) for s, u in zip(family.spaces, coords)})
     segs = []
     for s in range(count):
         spec = PATTERNS[_NAMES[int(pats[s])]]
         block = units[s * (1 + _WIDTH):(s + 1) * (1 + _WIDTH)]
-        weight = _log_int(block[0], MAX_WEIGHT)
         params = tuple(p.from_unit(u) for p, u in zip(spec.params, block[1:]))
-        segs.append(Segment(spec.name, params, weight))
-    cycles = _log_int(units[-2], MAX_CYCLES)
-    return Genome(tuple(segs), tuple(int(a) for a in permutation), cycles, float(units[-1]))
+        segs.append(Segment(spec.name, params, _log_int(block[0], MAX_WEIGHT)))
+    cycles = _log_int(units[tail], MAX_CYCLES)
+    return Genome(tuple(segs), tuple(int(a) for a in permutation), cycles, float(units[tail + 1]))
 
 
-def run(ev, max_examples: int, seed: int, max_confirmations: int, learn: bool = True,
-        population: int = 20, elite: float = 0.2, smoothing: float = 0.7, min_std: float = 0.05,
-        slots: int = 4):
-    """Returns (genome, screen, judgement, confirm_seed, level, evaluations_to_find) or None."""
+def run(ev, max_examples: int, seed: int, max_confirmations: int, learn: bool = True, families=(),
+        oblivious: bool = True, population: int = 20, elite: float = 0.2, smoothing: float = 0.7,
+        min_std: float = 0.05, slots: int = 4):
+    """Returns (candidate, screen, judgement, confirm_seed, level, evaluations_to_find) or None."""
     from .evaluate import derived_seed
 
     rng = np.random.default_rng(derived_seed(seed, 3))
-    law = Law(slots)
+    law = Law(slots, families, oblivious)
     n_elite = max(2, int(math.ceil(elite * population)))
-    horizon = ev.horizon
     drawn = 0
     while drawn < max_examples and len(ev.confirmations) < max_confirmations:
         scored = []
         for _ in range(min(population, max_examples - drawn)):
             coded = law.sample(rng)
-            genome = decode(*coded, rng.permutation(ev.n_actions))
+            cand = decode(*coded, rng.permutation(ev.n_actions), families)
             drawn += 1
             before = ev.evaluations
-            screen = ev.screen(genome, genome.key(), lambda g: expand(g, horizon))
+            screen = ev.screen(cand)
             scored.append((screen.score, coded))
             if screen.passed and ev.evaluations > before:  # a memo hit was already judged
-                accepted, judgement, cseed, level = ev.confirm(expand(genome, horizon), screen)
+                accepted, judgement, cseed, level = ev.confirm(cand, screen)
                 if accepted:
-                    return genome, screen, judgement, cseed, level, screen.evaluation
+                    return cand, screen, judgement, cseed, level, screen.evaluation
                 if len(ev.confirmations) >= max_confirmations:
                     return None
         if learn and len(scored) >= n_elite:

@@ -146,9 +146,17 @@ class Screen:
     evaluation: int          # 1-based index of this evaluation in the search
 
 
+def generic_range(horizon: int, metric: str, switching_cost: float) -> tuple[float, float]:
+    """Where a metric must lie whatever the sequence: regret in [-T, T], switches in [0, T - 1]."""
+    switches = (0.0, float(horizon - 1))
+    if metric == "switches":
+        return switches
+    return -float(horizon), float(horizon) + (switching_cost * switches[1] if metric == "cost_regret" else 0.0)
+
+
 @dataclass
 class Evaluator:
-    """Plays candidates for one (learner, claim, horizon, n) and keeps the books."""
+    """Plays candidates (genomes or adaptive adversaries) for one (learner, claim, horizon, n)."""
 
     learner: object
     claim: object
@@ -163,29 +171,40 @@ class Evaluator:
     evaluations: int = 0
     confirmations: list = field(default_factory=list)
     best: tuple | None = None        # (score, candidate, Screen)
+    last_values: object = None       # the metric values of the last confirmation
+    unshrunk: object = None          # hypothesis: the candidate as first found, before shrinking
     _memo: dict = field(default_factory=dict)
 
     def __post_init__(self):
         self.bound = self.claim.bound_at(self.horizon, self.n_actions)
         self.alpha = 1.0 - self.confidence
 
-    def _play(self, losses: np.ndarray, seed: int, replicas: int) -> np.ndarray:
-        result = run(self.learner, Sequence(losses), self.horizon, self.n_actions, replicas=replicas,
-                     seed=seed, n_jobs=self.n_jobs, switching_cost=self.switching_cost)
-        return result.metric(self.claim.metric)
+    def adversary_of(self, candidate):
+        """(adversary, range of the metric) for a candidate."""
+        from .genome import Genome, expand
 
-    def screen(self, candidate, key: str, losses_of, budget_left: bool = True) -> Screen | None:
-        """Screen a candidate (memoised by ``key``); None when the budget forbids a new run."""
+        if isinstance(candidate, Genome):
+            losses = expand(candidate, self.horizon)
+            return Sequence(losses), metric_range(losses, self.claim.metric, self.switching_cost)
+        return candidate.build(), generic_range(self.horizon, self.claim.metric, self.switching_cost)
+
+    def _play(self, candidate, seed: int, replicas: int):
+        adversary, value_range = self.adversary_of(candidate)
+        result = run(self.learner, adversary, self.horizon, self.n_actions, replicas=replicas,
+                     seed=seed, n_jobs=self.n_jobs, switching_cost=self.switching_cost)
+        return result.metric(self.claim.metric), value_range
+
+    def screen(self, candidate, budget_left: bool = True) -> Screen | None:
+        """Screen a candidate (memoised by its key); None when the budget forbids a new run."""
+        key = candidate.key()
         if key in self._memo:
             return self._memo[key]
         if not budget_left:
             return None
-        losses = losses_of(candidate)
         seed = derived_seed(self.seed, 1, int(key[:15], 16))
-        values = self._play(losses, seed, self.replicas)
+        values, value_range = self._play(candidate, seed, self.replicas)
         self.evaluations += 1
-        judgement = judge(self.claim, values, self.bound, self.alpha, self.confidence,
-                          metric_range(losses, self.claim.metric, self.switching_cost))
+        judgement = judge(self.claim, values, self.bound, self.alpha, self.confidence, value_range)
         result = Screen(score(self.claim, values, self.bound), judgement.violated, judgement, seed,
                         self.evaluations)
         self._memo[key] = result
@@ -193,7 +212,7 @@ class Evaluator:
             self.best = (result.score, candidate, result)
         return result
 
-    def confirm(self, losses: np.ndarray, screen: Screen) -> tuple[bool, Judgement, int, float]:
+    def confirm(self, candidate, screen: Screen) -> tuple[bool, Judgement, int, float]:
         """Confirm on fresh replicas at the next level of the alpha-spending sequence.
 
         Returns (accepted, judgement, seed, level). An "always" claim needs no
@@ -204,9 +223,10 @@ class Evaluator:
             seed, replicas, level = screen.seed, self.replicas, 0.0
         else:
             seed, replicas, level = derived_seed(self.seed, 2, j), self.confirm_replicas, spend(self.alpha, j)
-        values = self._play(losses, seed, replicas)
+        values, value_range = self._play(candidate, seed, replicas)
+        self.last_values = values
         judgement = judge(self.claim, values, self.bound, level if level else self.alpha, self.confidence,
-                          metric_range(losses, self.claim.metric, self.switching_cost))
+                          value_range)
         self.confirmations.append({"attempt": j, "accepted": judgement.violated, "level": level,
                                    "seed": seed, "replicas": replicas})
         return judgement.violated, judgement, seed, level

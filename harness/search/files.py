@@ -11,7 +11,13 @@ with ``allow_pickle=False``:
   (violation rate, violations, replicas, interval, confidence and the
   evidence of the acceptance test), the seeds that replay it, the search's
   bookkeeping (method, evaluations, error probability), the genome that
-  generated the losses (or null), and the package versions.
+  generated the losses (or null), the adaptive adversary (or null) and the
+  package versions.
+
+For an oblivious counterexample ``losses`` *is* the counterexample: every
+replica faced it. For an adaptive one the adversary (name, class,
+parameters) is, and ``losses`` holds what replica ``adversary.replica`` of
+the confirmation run faced, for reading; replay reruns the adversary.
 
 Loading checks every member's header before reading it (dtype, shape, size)
 and every field after, and refuses anything else (extra members or fields,
@@ -44,7 +50,8 @@ MAX_METADATA_CHARS = 1 << 20
 #: The metadata record: top-level fields and the fields of each nested record.
 FIELDS = {
     "top": {"format", "version", "horizon", "n_actions", "learner", "claim", "result", "seeds", "search",
-            "genome", "versions"},
+            "genome", "adversary", "versions"},
+    "adversary": {"name", "class", "params", "replica"},
     "learner": {"name", "class", "params"},
     "claim": {"metric", "bound", "bound_at", "delta", "kind", "name", "source"},
     "result": {"rate", "mean", "violations", "replicas", "ci", "confidence", "evidence"},
@@ -82,10 +89,12 @@ class Counterexample:
     evidence: dict
     mean: float | None = None
     genome: Genome | None = None
+    adversary: dict | None = None                  # adaptive counterexamples: name, class, params, replica
     evaluations: int = 0
     evaluations_to_find: int = 0
     settings: dict = field(default_factory=dict)   # max_examples, replicas, confirm_replicas, ...
     versions: dict = field(default_factory=dict)
+    unshrunk: object = None   # hypothesis: the candidate as first found (kept in memory, not in files)
 
     def __bool__(self):
         return True
@@ -107,7 +116,9 @@ class Counterexample:
         stat = (f"mean {self.claim.metric} {self.mean:.4g} (interval {self.ci[0]:.4g}..{self.ci[1]:.4g})"
                 if self.claim.kind == "expectation" else
                 f"violation rate {self.rate:.3g} (interval {self.ci[0]:.3g}..{self.ci[1]:.3g})")
-        where = str(self.genome) if self.genome is not None else "a saved loss table"
+        where = (str(self.genome) if self.genome is not None else
+                 f"adaptive adversary {self.adversary['name']}({_params_text(self.adversary['params'])})"
+                 if self.adversary is not None else "a saved loss table")
         return (f"claim {self.claim.name!r} ({self.claim.kind}, {self.claim.metric} <= {self.bound:.4g}) broken at "
                 f"T={self.horizon}, n={self.n_actions}: {stat} over {self.replicas} replicas; sequence: {where}; "
                 f"found by {self.method} after {self.evaluations_to_find} evaluations")
@@ -134,6 +145,8 @@ class Counterexample:
                        **{k: s.get(k) for k in ("max_examples", "replicas", "confirm_replicas", "confirmations",
                                                 "error_probability", "switching_cost")}},
             "genome": None if self.genome is None else self.genome.as_dict(),
+            "adversary": None if self.adversary is None else {k: self.adversary.get(k)
+                                                              for k in sorted(FIELDS["adversary"])},
             "versions": self.versions,
         }
 
@@ -193,6 +206,10 @@ class NoCounterexample:
 
     def save(self, path):
         raise ConfigError("save: the search found no counterexample, so there is nothing to save")
+
+
+def _params_text(params: dict) -> str:
+    return ", ".join(f"{k}={v:.3g}" if isinstance(v, float) else f"{k}={v}" for k, v in params.items())
 
 
 # -- reading -----------------------------------------------------------------------
@@ -386,6 +403,20 @@ def from_metadata(losses: np.ndarray, meta: dict, where: str = "counterexample")
         if genome.n_actions != n_actions:
             raise ConfigError(f"{where}: genome.permutation has {genome.n_actions} actions, the losses "
                               f"{n_actions}")
+    adversary = meta["adversary"]
+    if adversary is not None:
+        _record(where, adversary, "adversary")
+        _str(where, "adversary.name", adversary["name"])
+        _str(where, "adversary.class", adversary["class"], nullable=True)
+        if not isinstance(adversary["params"], dict):
+            raise ConfigError(f"{where}: adversary.params must be a JSON object")
+        _int(where, "adversary.replica", adversary["replica"])
+        if adversary["replica"] >= replicas:
+            raise ConfigError(f"{where}: adversary.replica ({adversary['replica']}) is not below result.replicas "
+                              f"({replicas})")
+        if genome is not None:
+            raise ConfigError(f"{where}: genome and adversary are both set; a counterexample is one or the other")
+        adversary = dict(adversary)
     versions = meta["versions"]
     if not isinstance(versions, dict) or not all(isinstance(v, (str, type(None))) for v in versions.values()):
         raise ConfigError(f"{where}: versions must map package names to version strings")
@@ -395,5 +426,6 @@ def from_metadata(losses: np.ndarray, meta: dict, where: str = "counterexample")
     return Counterexample(losses=losses, claim=claim, rate=rate, ci=ci, confidence=confidence,
                           violations=violations, replicas=replicas, learner=dict(learner), method=method,
                           seeds=dict(seeds), evidence=dict(r["evidence"]), mean=mean, genome=genome,
+                          adversary=adversary,
                           evaluations=s["evaluations"], evaluations_to_find=s["evaluations_to_find"],
                           settings=settings, versions=dict(versions))

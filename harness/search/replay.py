@@ -6,7 +6,7 @@ import os
 from dataclasses import dataclass
 
 from ..errors import ConfigError
-from .evaluate import judge, metric_range
+from .evaluate import generic_range, judge, metric_range
 from .files import Counterexample
 from .sequence import Sequence
 
@@ -70,12 +70,17 @@ def replay(counterexample, learner, replicas: int | None = None, seed: int | Non
     if not callable(getattr(learner, "play_block", None)):
         raise ConfigError(f"learner: expected a harness.Learner, got {type(learner).__name__}")
     switching_cost = float(ce.settings.get("switching_cost") or 0.0)
-    result = run(learner, Sequence(ce.losses), ce.horizon, ce.n_actions, replicas=replicas, seed=seed,
+    if ce.adversary is not None:
+        adversary = adversary_from_record(ce.adversary)
+        value_range = generic_range(ce.horizon, ce.claim.metric, switching_cost)
+    else:
+        adversary = Sequence(ce.losses)
+        value_range = metric_range(ce.losses, ce.claim.metric, switching_cost)
+    result = run(learner, adversary, ce.horizon, ce.n_actions, replicas=replicas, seed=seed,
                  n_jobs=n_jobs, switching_cost=switching_cost)
     values = result.metric(ce.claim.metric)
     bound = ce.bound
-    j = judge(ce.claim, values, bound, 1.0 - confidence, confidence,
-              metric_range(ce.losses, ce.claim.metric, switching_cost))
+    j = judge(ce.claim, values, bound, 1.0 - confidence, confidence, value_range)
     mean = float(values.mean()) if ce.claim.kind == "expectation" else None
     return ReplayResult(still_violates=j.violated, rate=j.violations / j.replicas, ci=j.interval,
                         violations=j.violations, replicas=j.replicas, seed=seed, confidence=confidence,
@@ -93,3 +98,18 @@ def learner_from_spec(spec: dict):
     except ConfigError as exc:
         raise ConfigError(f"learner: cannot rebuild the file's learner ({exc}); name one explicitly "
                           f"(--learner NAME|module:Class, or pass a learner)") from None
+
+
+def adversary_from_record(record: dict):
+    """Rebuild an adaptive counterexample's adversary (registry name, else module:Class)."""
+    import adversaries
+
+    try:
+        return adversaries.get(record["name"], **record["params"])
+    except ConfigError as exc:
+        if record.get("class") and record["class"] != record["name"]:
+            try:
+                return adversaries.get(record["class"], **record["params"])
+            except ConfigError:
+                pass
+        raise ConfigError(f"adversary: cannot rebuild the file's adaptive adversary ({exc})") from None
