@@ -84,6 +84,9 @@ def search(learner, claim, horizon, n_actions, max_examples=200, replicas=256, s
             raise ConfigError(f"patterns: must be a non-empty list of {', '.join(PATTERNS)}; got {patterns!r}")
     if claim.kind == "expectation":
         _needs_mean_bound()
+        if confidence <= 0.5:
+            raise ConfigError(f"confidence: expectation claims are tested one-sided with a two-sided confidence "
+                              f"sequence, so confidence must exceed 0.5; got {confidence}")
     from . import adaptive as adaptive_mod
     families = adaptive_mod.families(adaptive)
     oblivious = validate.boolean("oblivious", oblivious)
@@ -140,6 +143,6 @@ def search(learner, claim, horizon, n_actions, max_examples=200, replicas=256, s
 def _needs_mean_bound():
     from .. import stats
 
-    if not hasattr(stats, "mean_bound"):
+    if not hasattr(stats, "mean_sequence"):
         raise ConfigError("claim.kind: expectation claims need harness.stats mean bounds, not available in "
                           "this build; search a high_probability or always claim")

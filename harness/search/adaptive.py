@@ -10,6 +10,9 @@ from the defaults (common practice, and stated here so it can be
 overridden): a real default in [0, 1] moves in [0, 1]; another positive real
 d in [d/8, 8d]; an integer d >= 0 in [0, 4d + 4]; a bool in {False, True}.
 Parameters without a default, or of other types, stay fixed at the default.
+The registered adaptive adversaries whose defaults would mislead that rule
+have their spaces here (:data:`KNOWN_SPACES`). ``adaptive=True`` searches
+every registered adaptive adversary.
 
 Against an adaptive adversary every replica faces its own sequence, so a
 counterexample is the adversary itself; its file also stores the losses
@@ -82,6 +85,19 @@ def infer_space(name: str, default) -> Space | None:
     return None
 
 
+#: Spaces for registered adaptive adversaries (adversaries/adaptive.py): the margin of tie-keeper is a
+#: loss scale, not a probability; budget-drain needs a budget >= 1.
+KNOWN_SPACES = {
+    "chase": {"high": (0.0, 1.0), "low": (0.0, 1.0)},
+    "tie-keeper": {"margin": (0.125, 8.0)},
+    "budget-drain": {"budget": (1, 64), "reserve": (0, 8)},
+}
+
+
+class InvalidCandidate(Exception):
+    """A candidate whose adversary refuses its parameters (skipped by the search)."""
+
+
 @dataclass(frozen=True)
 class AdaptiveFamily:
     """An adaptive adversary and the spaces of its searched parameters."""
@@ -97,6 +113,10 @@ def families(adaptive) -> tuple[AdaptiveFamily, ...]:
 
     if adaptive is None or adaptive is False:
         return ()
+    if adaptive is True:
+        adaptive = [n for n in adversaries.names() if getattr(adversaries.REGISTRY.cls(n), "adaptive", False)]
+        if not adaptive:
+            raise ConfigError("adaptive: no adaptive adversary is registered; name one as module:Class")
     if isinstance(adaptive, str):
         adaptive = [adaptive]
     if isinstance(adaptive, (list, tuple)):
@@ -109,7 +129,7 @@ def families(adaptive) -> tuple[AdaptiveFamily, ...]:
         if not getattr(cls, "adaptive", False):
             raise ConfigError(f"adaptive: {name!r} is an oblivious adversary; the genome search covers those")
         defaults = parameters_of(cls)
-        given = dict(given or {})
+        given = dict(KNOWN_SPACES.get(name, {}) if given is None else given)
         unknown = sorted(set(given) - set(defaults))
         if unknown:
             raise ConfigError(f"adaptive {name!r}: unknown parameter {unknown[0]!r}; its parameters are: "
@@ -139,7 +159,10 @@ class AdaptiveCandidate:
     def build(self) -> Adversary:
         import adversaries
 
-        return adversaries.get(self.name, **dict(self.params))
+        try:
+            return adversaries.get(self.name, **dict(self.params))
+        except ConfigError as exc:
+            raise InvalidCandidate(str(exc)) from None
 
     def as_dict(self) -> dict:
         return {"name": self.name, "params": dict(self.params)}

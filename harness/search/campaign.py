@@ -1,9 +1,11 @@
 """``boundbreaker search CAMPAIGN.toml``: search every (claim, horizon, n) cell of a campaign.
 
-The campaign's [learner], [[claims]], [grid] (horizons, n_actions,
+The campaign's [learner], [[claims]] (plus the learner's own claims when
+[campaign] use_learner_claims is true), [grid] (horizons, n_actions,
 switching_cost) and [search] (max_examples, replicas, method) sections set
-the searches; [campaign] seed and confidence set the seeds and the error
-level. The chance of any false counterexample across the whole command is
+the searches; the adaptive adversaries among [[adversaries]] have their
+parameters searched too (oblivious ones are covered by the genome space);
+[campaign] seed and confidence set the seeds and the error level. The chance of any false counterexample across the whole command is
 kept at 1 - confidence by giving each of the k cells searched the level
 (1 - confidence) / k (Bonferroni). Cells are searched in order (claims as
 listed, then horizons, then n) and the command stops at the first
@@ -17,9 +19,6 @@ from dataclasses import dataclass, field
 
 from ..errors import ConfigError
 from .evaluate import derived_seed
-
-SEARCH_KEYS = ("max_examples", "replicas", "method")
-
 
 @dataclass
 class CampaignSearch:
@@ -62,11 +61,15 @@ def search_campaign(path, claim: str | None = None, method: str | None = None, o
     except ImportError:
         raise ConfigError("search CAMPAIGN.toml: campaign files are not supported in this build "
                           "(harness.config is missing); call harness.search() from Python") from None
+    import adversaries
+
     from . import search
 
     campaign = load_campaign(os.fspath(path))
     name = str(getattr(campaign, "name", "") or os.path.splitext(os.path.basename(os.fspath(path)))[0])
     claims = tuple(campaign.claims)
+    if getattr(campaign, "use_learner_claims", False):
+        claims += tuple(getattr(campaign.build_learner(), "claims", ()))
     if claim is not None:
         claims = tuple(c for c in claims if c.name == claim)
         if not claims:
@@ -75,10 +78,9 @@ def search_campaign(path, claim: str | None = None, method: str | None = None, o
     if not claims:
         raise ConfigError("claims: the campaign lists no claims to search; add a [[claims]] table")
     options = dict(getattr(campaign, "search", None) or {})
-    unknown = sorted(set(options) - set(SEARCH_KEYS))
-    if unknown:
-        raise ConfigError(f"search.{unknown[0]}: unknown option; [search] takes {', '.join(SEARCH_KEYS)}")
     method = method or options.get("method") or "hypothesis"
+    adaptive = sorted({spec["name"] for spec in getattr(campaign, "adversary_specs", ())
+                       if getattr(adversaries.REGISTRY.cls(spec["name"]), "adaptive", False)})
     horizons = _as_tuple(campaign.horizons)
     sizes = _as_tuple(campaign.n_actions)
     costs = _as_tuple(getattr(campaign, "switching_cost", 0.0) or 0.0)
@@ -91,7 +93,7 @@ def search_campaign(path, claim: str | None = None, method: str | None = None, o
         outcome = search(campaign.build_learner(), c, T, n,
                          max_examples=options.get("max_examples", 200), replicas=options.get("replicas", 256),
                          seed=derived_seed(int(campaign.seed), 5, index), method=method, confidence=confidence,
-                         switching_cost=switching_cost)
+                         switching_cost=switching_cost, adaptive=adaptive or None)
         result.cells.append((c.name, T, n, outcome))
         if progress:
             progress(result.cells[-1])

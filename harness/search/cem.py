@@ -131,7 +131,11 @@ def run(ev, max_examples: int, seed: int, max_confirmations: int, learn: bool = 
             cand = decode(*coded, rng.permutation(ev.n_actions), families)
             drawn += 1
             before = ev.evaluations
-            screen = ev.screen(cand)
+            try:
+                screen = ev.screen(cand)
+            except adaptive.InvalidCandidate:
+                scored.append((-math.inf, coded))
+                continue
             scored.append((screen.score, coded))
             if screen.passed and ev.evaluations > before:  # a memo hit was already judged
                 accepted, judgement, cseed, level = ev.confirm(cand, screen)

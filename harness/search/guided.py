@@ -35,7 +35,7 @@ from __future__ import annotations
 
 from contextlib import contextmanager
 
-from hypothesis import HealthCheck, Phase, Verbosity, example, given, settings, target
+from hypothesis import HealthCheck, Phase, Verbosity, example, given, reject, settings, target
 from hypothesis import seed as hypothesis_seed
 
 from hypothesis import strategies as st
@@ -100,7 +100,10 @@ def run(ev, max_examples: int, seed: int, max_segments: int, shrink_budget: int,
                 return
             allow = state["first_at"] is None or ev.evaluations - state["first_at"] < shrink_budget
             allow = allow and (state["first_at"] is not None or ev.evaluations - start < remaining)
-            screen = ev.screen(genome, budget_left=allow)
+            try:
+                screen = ev.screen(genome, budget_left=allow)
+            except adaptive.InvalidCandidate:
+                reject()
             if screen is None:
                 return
             target(screen.score, label="score (metric statistic - bound) / bound")
