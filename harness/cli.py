@@ -194,7 +194,13 @@ def _add_search(sub):
 def _cmd_search(args) -> int:
     from .search.campaign import search_campaign
 
-    outcome = search_campaign(args.campaign, claim=args.claim, method=args.method, out=args.out)
+    def progress(cell):
+        name, horizon, n, found = cell
+        print(f"searched {name} T={horizon} n={n}: {'found' if found else 'nothing'} "
+              f"({found.evaluations} evaluations)", file=sys.stderr)
+
+    outcome = search_campaign(args.campaign, claim=args.claim, method=args.method, out=args.out,
+                              progress=None if args.json or not sys.stderr.isatty() else progress)
     if args.json:
         print(json.dumps(outcome.as_dict(), indent=2))
     else:

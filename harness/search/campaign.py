@@ -45,7 +45,7 @@ class CampaignSearch:
         return "\n".join(lines)
 
     def as_dict(self) -> dict:
-        cells = [{"claim": name, "horizon": horizon, "n_actions": n, "found": bool(outcome),
+        cells = [{"claim": name, "horizon": horizon, "n_actions": n, "found": bool(outcome), "method": outcome.method,
                   "evaluations": outcome.evaluations, "evaluations_to_find": outcome.evaluations_to_find}
                  for name, horizon, n, outcome in self.cells]
         out = {"campaign": self.campaign, "found": bool(self.found), "path": self.path, "cells": cells}
