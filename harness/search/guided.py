@@ -109,7 +109,8 @@ def run(ev, max_examples: int, seed: int, max_segments: int, shrink_budget: int,
             target(screen.score, label="score (metric statistic - bound) / bound")
             if screen.passed:
                 if state["first_at"] is None:
-                    state["first_at"], state["first"] = screen.evaluation, genome
+                    # the count now, not screen.evaluation: a memoised screen may date from an earlier round
+                    state["first_at"], state["first"] = ev.evaluations, genome
                 state["last"] = genome
                 raise _Interesting()
 
