@@ -61,6 +61,10 @@ def search(learner, claim, horizon, n_actions, max_examples=200, replicas=256, s
     Returns a :class:`Counterexample` when one is confirmed, else a falsy
     :class:`NoCounterexample` with the evaluations spent and the best
     candidate seen.
+
+    Cost: at most ``max_examples`` candidates are generated; Hypothesis'
+    shrinking adds at most ``shrink_budget`` per screened-in candidate, and
+    each confirmation plays ``confirm_replicas`` more replicas.
     """
     if not isinstance(learner, Learner) and not callable(getattr(learner, "play_block", None)):
         raise ConfigError(f"learner: expected a harness.Learner, got {type(learner).__name__}")

@@ -22,7 +22,9 @@ from typing import Callable
 
 import numpy as np
 
-METHODS = ("hypothesis", "cem", "random")
+# "hypothesis-generated": the Hypothesis method without the plain pattern examples tried first
+# (plain_first=False), to show what generation, targeting and shrinking do on their own.
+METHODS = ("hypothesis", "hypothesis-generated", "cem", "random")
 
 
 @dataclass(frozen=True)
@@ -68,8 +70,10 @@ def measure(subject: Subject, method: str, seeds, budget: int, replicas: int = 2
     runs = []
     started = time.perf_counter()
     for seed in seeds:
+        options = {"method": "hypothesis", "plain_first": False} if method == "hypothesis-generated" else \
+            {"method": method}
         found = search(subject.learner(), subject.claim, subject.horizon, subject.n_actions, max_examples=budget,
-                       replicas=replicas, seed=seed, method=method)
+                       replicas=replicas, seed=seed, **options)
         runs.append(found.evaluations_to_find if found else None)
     hits = [r for r in runs if r is not None]
     return {"subject": subject.name, "method": method, "budget": budget, "seeds": list(seeds),
@@ -90,12 +94,12 @@ def main(seeds=range(10), budget: int = 300, methods=METHODS, names=None) -> lis
 
 
 def format_rows(rows) -> str:
-    lines = [f"{'defect':<24}{'method':<12}{'found':>8}{'median':>9}{'mean(found)':>13}  runs"]
+    lines = [f"{'defect':<24}{'method':<22}{'found':>8}{'median':>9}{'mean(found)':>13}  runs"]
     for r in rows:
         median = "> budget" if math.isinf(r["median"]) else f"{r['median']:.0f}"
         mean = "-" if r["mean_found"] is None else f"{r['mean_found']:.1f}"
         runs = " ".join("-" if x is None else str(x) for x in r["runs"])
-        lines.append(f"{r['subject']:<24}{r['method']:<12}{r['found']:>4}/{len(r['runs']):<3}{median:>9}"
+        lines.append(f"{r['subject']:<24}{r['method']:<22}{r['found']:>4}/{len(r['runs']):<3}{median:>9}"
                      f"{mean:>13}  {runs}")
     return "\n".join(lines)
 
