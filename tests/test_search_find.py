@@ -7,7 +7,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 from scipy import stats as sst
 
-from harness import Learner, search
+from harness import Learner, run, search
 from harness.claims import Claim
 from harness.errors import ConfigError
 from harness.learners import get
@@ -249,3 +249,26 @@ def test_shrinking_a_planted_defect_leaves_one_segment():
     assert g.segments[0].plainness() <= 1 and g.segments[0].weight == 1
     gaps = np.abs(found.losses[:, 0] - found.losses[:, 1])
     assert np.any((gaps > 0.2) & (gaps < 0.4))
+
+
+def test_stale_weights_defect_needs_a_non_plain_sequence_and_is_found():
+    """The bench's planted batching bug: weights refreshed every 16 rounds. Plain alternation (period 1)
+    does not hurt it; leader changes in step with the refreshes do. Budget 100 examples (fixed seed);
+    the fast path plays exactly as act/update do (same draws, same regret)."""
+    from harness.protocol import Learner as Base
+    from harness.search import Genome, Sequence
+    from harness.search.effectiveness import StaleHedge
+
+    class Slow(StaleHedge):
+        def play_block(self, losses):
+            return Base.play_block(self, losses)
+
+    table = expand(Genome((Segment.plain("alternating", period=16),), (0, 1)), T)
+    fast = run(StaleHedge(16), Sequence(table), T, N, replicas=300, seed=4).regret
+    slow = run(Slow(16), Sequence(table), T, N, replicas=300, seed=4).regret
+    assert np.array_equal(fast, slow)
+    plain = expand(Genome((Segment.plain("alternating"),), (0, 1)), T)
+    assert run(StaleHedge(16), Sequence(plain), T, N, replicas=300, seed=4).regret.mean() < 5
+    found = search(StaleHedge(16), HEDGE_HP, T, N, max_examples=100, replicas=256, seed=0)
+    assert found and found.evaluations_to_find <= 100 and len(found.genome.segments) <= 2
+    assert found.genome != Genome((Segment.plain("alternating"),), (0, 1))

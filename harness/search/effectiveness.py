@@ -22,6 +22,10 @@ from typing import Callable
 
 import numpy as np
 
+from .. import kernels
+from ..learners.experts import cumulative_before, hedge_cdf
+from ..protocol import Learner
+
 # "hypothesis-generated": the Hypothesis method without the plain pattern examples tried first
 # (plain_first=False), to show what generation, targeting and shrinking do on their own.
 METHODS = ("hypothesis", "hypothesis-generated", "cem", "random")
@@ -35,6 +39,59 @@ class Subject:
     horizon: int
     n_actions: int
     note: str = ""
+
+
+class StaleHedge(Learner):
+    """PLANTED DEFECT: Hedge whose weights are refreshed only every ``batch`` rounds.
+
+    In round t it draws from p(i) ~ exp(-eta L_s(i)) with s = batch * floor(t / batch) the last
+    refresh (a service that recomputes its policy once per batch of requests); eta is Hedge's
+    default sqrt(8 ln n / T). On i.i.d. or fast-alternating losses it behaves like Hedge; a
+    sequence whose leader changes in step with the refreshes makes it follow the stale leader
+    every round, for regret linear in T. Not a published algorithm: a bench subject.
+    """
+
+    def __init__(self, batch=16):
+        self.batch = batch
+
+    def reset(self, n_actions, horizon, replicas, rng):
+        self._n, self._replicas, self._rng, self._t = n_actions, replicas, rng, 0
+        self._eta = math.sqrt(8 * math.log(n_actions) / horizon)
+        self._cum = np.zeros(n_actions)       # shared state until a per-replica block arrives
+        self._stale = np.zeros(n_actions)
+
+    def _per_replica(self):
+        if self._cum.ndim == 1:
+            self._cum = np.tile(self._cum, (self._replicas, 1))
+            self._stale = np.tile(self._stale, (self._replicas, 1))
+
+    def act(self):
+        self._per_replica()
+        cdf = hedge_cdf(self._stale, self._eta)
+        u = self._rng.random(self._replicas)
+        return np.minimum((cdf < u[:, None]).sum(axis=1), self._n - 1).astype(np.int64)
+
+    def update(self, actions, losses):
+        self._per_replica()
+        self._cum = self._cum + losses
+        self._t += 1
+        if self._t % self.batch == 0:
+            self._stale = self._cum.copy()
+
+    def play_block(self, losses):
+        if losses.ndim != 2 or self._cum.ndim != 1:
+            return super().play_block(losses)
+        steps = losses.shape[0]
+        before, after = cumulative_before(self._cum, losses)
+        t = self._t + np.arange(steps)
+        refresh = (t // self.batch) * self.batch - self._t     # index of the last refresh in this block
+        stale = np.where((refresh >= 0)[:, None], before[np.maximum(refresh, 0)], self._stale)
+        actions = kernels.sample_rows(hedge_cdf(stale, self._eta), self._rng.random((steps, self._replicas)))
+        end = self._t + steps
+        last = (end // self.batch) * self.batch - self._t
+        self._stale = (after if last == steps else before[last]) if last >= 0 else self._stale
+        self._cum, self._t = after, end
+        return actions
 
 
 def _hedge_claim():
@@ -60,6 +117,8 @@ def subjects() -> list[Subject]:
                 "eta ten times sqrt(8 ln n / T)"),
         Subject("hedge-hot-6x (n=4)", _hot_hedge(6, 1000, 4), _hedge_claim(), 1000, 4,
                 "eta six times sqrt(8 ln n / T)"),
+        Subject("stale-hedge (batch 16)", lambda: StaleHedge(16), _hedge_claim(), 1000, 2,
+                "weights refreshed every 16 rounds; only leader changes in step with the refreshes hurt it"),
     ]
     return out
 
