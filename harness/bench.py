@@ -20,7 +20,7 @@ import tracemalloc
 import numpy as np
 
 from . import kernels
-from .learners import get as get_learner, names as learner_names
+from .learners import example, get as get_learner, names as learner_names
 from .protocol import Learner
 from .runner import run
 
@@ -79,7 +79,7 @@ def main(horizon=100_000, replicas=1024, n_actions=10, learners=None, quick=Fals
     naive_h, naive_r = max(200, horizon // 50), 4
     rows = []
     for name in names:
-        learner = get_learner(name)
+        learner = example(name)  # registry defaults, or the entry's example_params (a budget, an inner learner)
         run(learner, _adversary(True), 64, n_actions, replicas=8)  # compile kernels outside the clock
         run(learner, _adversary(False), 64, n_actions, replicas=8)
         fast = throughput(learner, horizon, replicas, n_actions, shared=True)

@@ -72,3 +72,14 @@ class Faulty(Learner):
         if self._t == self.at and self.where == "update":
             raise KeyError("lost state")
         self._t += 1
+
+
+def drive(learner, table, replicas, seed=0, fast=True):
+    """Reset ``learner`` and play the whole (T, n) or (T, replicas, n) table in one block;
+    returns the actions (T, replicas). ``fast=False`` uses the act/update loop."""
+    table = np.asarray(table, dtype=float)
+    learner.reset(table.shape[-1], table.shape[0], replicas, np.random.default_rng(seed))
+    learner._protocol_replicas = replicas
+    view = table.view()
+    view.flags.writeable = False
+    return learner.play_block(view) if fast else Learner.play_block(learner, view)

@@ -14,6 +14,7 @@ import numpy as np
 from numpy.polynomial.legendre import leggauss
 
 from .. import kernels, validate
+from ..claims import Claim
 from ..protocol import Learner
 from . import REGISTRY
 
@@ -83,6 +84,30 @@ def default_hedge_eta(n_actions: int, horizon: int) -> float:
     return math.sqrt(8.0 * math.log(n_actions) / horizon)
 
 
+HEDGE_SOURCE = "Cesa-Bianchi and Lugosi 2006, Prediction, Learning, and Games"
+
+
+def hedge_claims(eta=None, *, label: str = "hedge") -> tuple:
+    """Hedge's published regret claims for a learning rate (None = the default tuning).
+
+    Default eta = sqrt(8 ln n / T): sqrt(T ln n / 2) in expectation (Theorem
+    2.2) and that plus sqrt(T ln(1/delta) / 2) with probability 1 - delta
+    (Lemma 4.1 / Corollary 4.2). Fixed eta: ln(n)/eta + eta T/8 in expectation
+    (the general form of Theorem 2.2). Numbers from memory.
+    """
+    if eta is None:
+        return (Claim(metric="regret", bound="sqrt(T * ln(n) / 2)", kind="expectation",
+                      name=f"{label}: expected regret <= sqrt(T ln n / 2)",
+                      source=f"{HEDGE_SOURCE}, Theorem 2.2 (from memory)"),
+                Claim(metric="regret", bound="sqrt(T * ln(n) / 2) + sqrt(T * ln(1 / delta) / 2)", delta=0.05,
+                      kind="high_probability",
+                      name=f"{label}: regret <= sqrt(T ln n / 2) + sqrt(T ln(1/delta) / 2) w.p. 1 - delta",
+                      source=f"{HEDGE_SOURCE}, Lemma 4.1 and Corollary 4.2 (from memory)"))
+    return (Claim(metric="regret", bound=f"ln(n) / {eta!r} + {eta!r} * T / 8", kind="expectation",
+                  name=f"{label}: expected regret <= ln(n)/eta + eta T/8 (eta = {eta:g})",
+                  source=f"{HEDGE_SOURCE}, Theorem 2.2, general eta (from memory)"),)
+
+
 @REGISTRY.register("hedge", "exponential weights (Hedge), a fresh draw from the weights each round")
 class Hedge(_CumulativeLearner):
     r"""Hedge: the exponentially weighted average forecaster, played by sampling.
@@ -97,12 +122,26 @@ class Hedge(_CumulativeLearner):
     2006, *Prediction, Learning, and Games*, Theorem 2.2; Freund and Schapire
     1997 for the algorithm).
 
+    Claims (``claims``): with the default eta, E[regret] <= sqrt(T ln n / 2)
+    (Theorem 2.2) and, with probability at least 1 - delta, regret <=
+    sqrt(T ln n / 2) + sqrt(T ln(1/delta) / 2) (Cesa-Bianchi and Lugosi 2006,
+    Lemma 4.1 / Corollary 4.2: Hoeffding-Azuma on the sampled losses; valid
+    against adaptive adversaries too). With a fixed eta the bound of the
+    same theorem is ln(n) / eta + eta T / 8 in expectation. The theorem and
+    lemma numbers and the general-eta form are from memory (the issue
+    quotes the same); ``tests/test_learners_claims.py`` checks the
+    expectation bound against the exact mixture regret.
+
     Fast path: on a shared sequence the weights, and so the CDF of p_t, are
     the same for every replica; each replica only draws one uniform per round.
     """
 
     def __init__(self, eta=None):
         self.eta = None if eta is None else validate.positive_real("eta", eta)
+
+    @property
+    def claims(self):
+        return hedge_claims(self.eta)
 
     def reset(self, n_actions, horizon, replicas, rng):
         super().reset(n_actions, horizon, replicas, rng)
@@ -216,10 +255,24 @@ class FTPL(_CumulativeLearner):
     and each replica draws one uniform instead of n exponentials. The slow
     path (``act``) draws the perturbations themselves; tests check that both
     give the same distribution of play.
+
+    Claim: Kalai and Vempala's bound for FPL* on experts, E[loss] <=
+    (1 + eta) L* + (1 + ln n) / eta, with L* <= T gives E[regret] <=
+    eta T + (1 + ln n) / eta, i.e. 2 sqrt(T (1 + ln n)) at the default eta
+    (the constant (1 + ln n) is from memory; ``tests/test_learners_claims.py``
+    checks the expectation against the exact mixture regret).
     """
 
     def __init__(self, eta=None):
         self.eta = None if eta is None else validate.positive_real("eta", eta)
+
+    @property
+    def claims(self):
+        bound = "2 * sqrt(T * (1 + ln(n)))" if self.eta is None else f"{self.eta!r} * T + (1 + ln(n)) / {self.eta!r}"
+        return (Claim(metric="regret", bound=bound, kind="expectation",
+                      name=f"ftpl: expected regret <= {bound}",
+                      source="Kalai and Vempala 2005, J. Comput. Syst. Sci. 71:291-307, FPL* for experts "
+                             "with L* <= T (from memory)"),)
 
     def reset(self, n_actions, horizon, replicas, rng):
         super().reset(n_actions, horizon, replicas, rng)
