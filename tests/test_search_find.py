@@ -11,7 +11,7 @@ from harness import Learner, run, search
 from harness.claims import Claim
 from harness.errors import ConfigError
 from harness.learners import get
-from harness.search import Counterexample, NoCounterexample, Segment, expand
+from harness.search import Counterexample, Genome, NoCounterexample, Segment, expand
 
 T, N = 1000, 2
 
@@ -272,3 +272,22 @@ def test_stale_weights_defect_needs_a_non_plain_sequence_and_is_found():
     found = search(StaleHedge(16), HEDGE_HP, T, N, max_examples=100, replicas=256, seed=0)
     assert found and found.evaluations_to_find <= 100 and len(found.genome.segments) <= 2
     assert found.genome != Genome((Segment.plain("alternating"),), (0, 1))
+
+
+def test_heavy_tail_learner_is_broken_within_10_examples():
+    """flawed-heavy-tail (learners issue): each replica breaks with probability 0.01 at a uniform onset
+    round and then switches every round, so on the constant sequence (where the dartboard itself never
+    switches) P[switches > b] = 0.01 * P[onset < T - b - 1] = 0.01 * 972/1000 at T=1000, n=2
+    (closed form from the learner's definition), against its claimed delta = 0.001. Budget 10 examples;
+    the reported counts must agree with the closed form (99.9% Clopper-Pearson; false failure 0.001)."""
+    learner = get("flawed-heavy-tail")
+    claim = learner.claims[1]
+    assert claim.kind == "high_probability" and claim.delta == 0.001
+    found = search(learner, claim.name, T, N, max_examples=10, replicas=256, seed=0)
+    assert found and found.evaluations_to_find <= 10 and found.claim == claim
+    assert found.evidence["lower"] > 0.001
+    assert found.genome == Genome((Segment.plain("constant"),), (0, 1))   # the first plain example
+    exact = 0.01 * (T - math.floor(claim.bound_at(T, N)) - 1) / T
+    lo = sst.beta.ppf(0.0005, found.violations, found.replicas - found.violations + 1)
+    hi = sst.beta.ppf(0.9995, found.violations + 1, found.replicas - found.violations)
+    assert lo <= exact <= hi

@@ -111,12 +111,21 @@ def _hot_hedge(c: float, horizon: int, n: int):
     return build
 
 
+def _registered(name: str):
+    from ..learners import get
+
+    return get(name)
+
+
 def subjects() -> list[Subject]:
     out = [
         Subject("hedge-hot-10x (n=2)", _hot_hedge(10, 1000, 2), _hedge_claim(), 1000, 2,
                 "eta ten times sqrt(8 ln n / T)"),
         Subject("hedge-hot-6x (n=4)", _hot_hedge(6, 1000, 4), _hedge_claim(), 1000, 4,
                 "eta six times sqrt(8 ln n / T)"),
+        Subject("flawed-heavy-tail (n=2)", lambda: _registered("flawed-heavy-tail"),
+                _registered("flawed-heavy-tail").claims[1], 1000, 2,
+                "learners issue: 1% of replicas switch every round from a random onset; claims delta 0.001"),
         Subject("stale-hedge (batch 16)", lambda: StaleHedge(16), _hedge_claim(), 1000, 2,
                 "weights refreshed every 16 rounds; only leader changes in step with the refreshes hurt it"),
     ]
