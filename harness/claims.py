@@ -169,3 +169,21 @@ class Claim:
                 f"{getattr(bound, '__module__', '?')}:{getattr(bound, '__qualname__', repr(bound))}"
         return {"metric": self.metric, "bound": bound, "delta": self.delta, "kind": self.kind,
                 "name": self.name, "source": self.source}
+
+
+def metric_range(metric: str, horizon: int, switching_cost: float = 0.0) -> tuple[float, float]:
+    """The values a metric can take over ``horizon`` rounds, whatever the learner and losses.
+
+    With losses in [0, 1], the learner's total and every action's total lie in
+    [0, T], so regret = played - min_i total(i) lies in [-T, T]; switches
+    count rounds t >= 1 with a new action, so lie in [0, T - 1]; cost_regret
+    adds switching_cost * switches. Expectation claims are judged with these
+    known ranges and nothing else (common practice).
+    """
+    validate.choice("metric", metric, METRICS)
+    T = float(horizon)
+    if metric == "regret":
+        return -T, T
+    if metric == "switches":
+        return 0.0, max(T - 1.0, 0.0)
+    return -T, T + float(switching_cost) * max(T - 1.0, 0.0)

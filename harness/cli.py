@@ -248,7 +248,68 @@ def _cmd_replay(args) -> int:
     return EXIT_VIOLATION if result.still_violates else EXIT_PASS
 
 
+def _add_certify(sub):
+    p = sub.add_parser("certify", help="judge a learner's claims on a campaign's battery; writes a certificate",
+                       description="Certify the claims of a campaign file (or the bundled demo). Without --out or "
+                                   "--report, the certificate and a Markdown summary go to reports/<campaign name>/.")
+    p.add_argument("campaign", nargs="?", metavar="CAMPAIGN.toml", help="campaign file (see DEVELOPERS.md)")
+    p.add_argument("--demo", action="store_true", help="certify the bundled demo campaign (an edge router)")
+    p.add_argument("--report", metavar="DIR", help="write certificate.json and summary.md into DIR")
+    p.add_argument("--out", metavar="FILE", help="write the certificate JSON to FILE (no report directory "
+                                                   "unless --report is also given)")
+    p.add_argument("--jobs", type=int, default=None, help="parallel jobs (-1: all cores); overrides the campaign")
+    p.add_argument("--cluster", metavar="ADDRESS",
+                   help="run chunks on a dask cluster: 'local' or a scheduler address tcp://host:8786")
+    p.set_defaults(handler=_cmd_certify)
+
+
+def _cmd_certify(args) -> int:
+    from .certify import certify_campaign, write_report
+    from .config import demo_path, load_campaign
+
+    if args.demo and args.campaign:
+        raise ConfigError("certify: give a campaign file or --demo, not both")
+    if not args.demo and not args.campaign:
+        raise ConfigError("certify: give a campaign file (CAMPAIGN.toml) or --demo")
+    if args.jobs is not None and args.jobs == 0:
+        raise ConfigError("--jobs: must be a non-zero integer (-1 = all cores), got 0")
+    campaign = load_campaign(demo_path() if args.demo else args.campaign)
+    if not campaign.claims:
+        raise ConfigError(f"{args.campaign or 'demo'}: claims: the campaign has none; add [[claims]] tables "
+                          f"or set campaign.use_learner_claims = true")
+    written = []
+    if args.out:  # fail on an unwritable path before the work, not after
+        _writable(args.out, "--out")
+    report = args.report or (None if args.out else os.path.join("reports", _slug(campaign.name)))
+    if args.cluster and args.jobs is None:
+        args.jobs = -1
+    with _scaled(args):
+        cert = certify_campaign(campaign, n_jobs=args.jobs, progress=True)
+    print(cert.table())
+    if args.out:
+        written.append(cert.save(args.out))
+    if report:
+        written.extend(write_report(cert, report).values())
+    for path in written:
+        print(f"wrote {path}")
+    return {"pass": EXIT_PASS, "fail": EXIT_VIOLATION}.get(cert.verdict, EXIT_INCONCLUSIVE)
+
+
+def _writable(path, option):
+    folder = os.path.dirname(os.path.abspath(path))
+    if os.path.isdir(path):
+        raise ConfigError(f"{option} {path}: is a directory; give a file name such as certificate.json")
+    if not os.path.isdir(folder):
+        raise ConfigError(f"{option} {path}: folder {folder} does not exist; create it or choose another path")
+
+
+def _slug(name: str) -> str:
+    keep = "".join(ch.lower() if ch.isalnum() else "-" for ch in name).strip("-")
+    return "-".join(part for part in keep.split("-") if part) or "campaign"
+
+
 COMMANDS = [_add_run, _add_list, _add_bench]
+COMMANDS.append(_add_certify)
 COMMANDS += [_add_search, _add_replay]
 
 

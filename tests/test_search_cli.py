@@ -7,8 +7,6 @@ import pytest
 
 from harness.cli import main
 
-pytest.importorskip("harness.config")  # campaign files (issue 5); remove once merged
-
 HOT_ETA = 10 * math.sqrt(8 * math.log(2) / 1000)
 
 CAMPAIGN = """

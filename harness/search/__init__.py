@@ -87,7 +87,6 @@ def search(learner, claim, horizon, n_actions, max_examples=200, replicas=256, s
         if unknown or not patterns:
             raise ConfigError(f"patterns: must be a non-empty list of {', '.join(PATTERNS)}; got {patterns!r}")
     if claim.kind == "expectation":
-        _needs_mean_bound()
         if confidence <= 0.5:
             raise ConfigError(f"confidence: expectation claims are tested one-sided with a two-sided confidence "
                               f"sequence, so confidence must exceed 0.5; got {confidence}")
@@ -142,11 +141,3 @@ def search(learner, claim, horizon, n_actions, max_examples=200, replicas=256, s
         evidence=judgement.evidence, mean=judgement.estimate if claim.kind == "expectation" else None,
         genome=genome, adversary=record, evaluations=ev.evaluations, evaluations_to_find=to_find,
         settings=settings, versions=versions(), unshrunk=ev.unshrunk)
-
-
-def _needs_mean_bound():
-    from .. import stats
-
-    if not hasattr(stats, "mean_sequence"):
-        raise ConfigError("claim.kind: expectation claims need harness.stats mean bounds, not available in "
-                          "this build; search a high_probability or always claim")

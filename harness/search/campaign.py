@@ -1,6 +1,6 @@
 """``boundbreaker search CAMPAIGN.toml``: search every (claim, horizon, n) cell of a campaign.
 
-The campaign's [learner], [[claims]] (plus the learner's own claims when
+The campaign's [learner], [[claims]] (and the learner's own claims when
 [campaign] use_learner_claims is true), [grid] (horizons, n_actions,
 switching_cost) and [search] (max_examples, replicas, method) sections set
 the searches; the adaptive adversaries among [[adversaries]] have their
@@ -56,20 +56,16 @@ class CampaignSearch:
 
 def search_campaign(path, claim: str | None = None, method: str | None = None, out: str | None = None,
                     progress=None) -> CampaignSearch:
-    try:
-        from ..config import load_campaign
-    except ImportError:
-        raise ConfigError("search CAMPAIGN.toml: campaign files are not supported in this build "
-                          "(harness.config is missing); call harness.search() from Python") from None
     import adversaries
+
+    from .. import stats
+    from ..config import load_campaign
 
     from . import search
 
     campaign = load_campaign(os.fspath(path))
     name = str(getattr(campaign, "name", "") or os.path.splitext(os.path.basename(os.fspath(path)))[0])
-    claims = tuple(campaign.claims)
-    if getattr(campaign, "use_learner_claims", False):
-        claims += tuple(getattr(campaign.build_learner(), "claims", ()))
+    claims = tuple(campaign.claims)  # the file's, then the learner's when use_learner_claims is set
     if claim is not None:
         claims = tuple(c for c in claims if c.name == claim)
         if not claims:
@@ -86,8 +82,7 @@ def search_campaign(path, claim: str | None = None, method: str | None = None, o
     costs = _as_tuple(getattr(campaign, "switching_cost", 0.0) or 0.0)
     switching_cost = float(costs[0])
     cells = [(c, T, n) for c in claims for T in horizons for n in sizes]
-    alpha = 1.0 - float(campaign.confidence)
-    confidence = 1.0 - alpha / len(cells)
+    confidence = stats.bonferroni(float(campaign.confidence), len(cells))
     result = CampaignSearch(campaign=name)
     for index, (c, T, n) in enumerate(cells):
         outcome = search(campaign.build_learner(), c, T, n,

@@ -45,6 +45,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .. import stats
+from ..claims import metric_range as claim_metric_range
 from ..errors import ConfigError
 from ..runner import run
 from .sequence import Sequence
@@ -164,14 +165,6 @@ class Screen:
     evaluation: int          # 1-based index of this evaluation in the search
 
 
-def generic_range(horizon: int, metric: str, switching_cost: float) -> tuple[float, float]:
-    """Where a metric must lie whatever the sequence: regret in [-T, T], switches in [0, T - 1]."""
-    switches = (0.0, float(horizon - 1))
-    if metric == "switches":
-        return switches
-    return -float(horizon), float(horizon) + (switching_cost * switches[1] if metric == "cost_regret" else 0.0)
-
-
 @dataclass
 class Evaluator:
     """Plays candidates (genomes or adaptive adversaries) for one (learner, claim, horizon, n)."""
@@ -204,7 +197,7 @@ class Evaluator:
         if isinstance(candidate, Genome):
             losses = expand(candidate, self.horizon)
             return Sequence(losses), metric_range(losses, self.claim.metric, self.switching_cost)
-        return candidate.build(), generic_range(self.horizon, self.claim.metric, self.switching_cost)
+        return candidate.build(), claim_metric_range(self.claim.metric, self.horizon, self.switching_cost)
 
     def _play(self, candidate, seed: int, replicas: int):
         adversary, value_range = self.adversary_of(candidate)

@@ -6,7 +6,8 @@ import os
 from dataclasses import dataclass
 
 from ..errors import ConfigError
-from .evaluate import generic_range, judge, metric_range
+from ..claims import metric_range as claim_metric_range
+from .evaluate import judge, metric_range
 from .files import Counterexample
 from .sequence import Sequence
 
@@ -72,7 +73,7 @@ def replay(counterexample, learner, replicas: int | None = None, seed: int | Non
     switching_cost = float(ce.settings.get("switching_cost") or 0.0)
     if ce.adversary is not None:
         adversary = adversary_from_record(ce.adversary)
-        value_range = generic_range(ce.horizon, ce.claim.metric, switching_cost)
+        value_range = claim_metric_range(ce.claim.metric, ce.horizon, switching_cost)
     else:
         adversary = Sequence(ce.losses)
         value_range = metric_range(ce.losses, ce.claim.metric, switching_cost)
