@@ -181,7 +181,10 @@ def _cmd_bench(args) -> int:
 
 def _add_search(sub):
     p = sub.add_parser("search", help="search for a loss sequence that breaks a campaign's claim; save it")
-    p.add_argument("campaign", metavar="CAMPAIGN.toml", help="campaign file ([learner], [[claims]], [grid], [search])")
+    p.add_argument("campaign", metavar="CAMPAIGN.toml", nargs="?",
+                   help="campaign file ([learner], [[claims]], [grid], [search])")
+    p.add_argument("--demo", action="store_true",
+                   help="search the bundled demo (a model fleet whose controller is tuned too hot)")
     p.add_argument("--claim", help="search only this claim (by name); default: every claim, in order")
     p.add_argument("--method", choices=["hypothesis", "cem", "random"],
                    help="search method (default: the campaign's [search] method, else hypothesis)")
@@ -192,14 +195,18 @@ def _add_search(sub):
 
 
 def _cmd_search(args) -> int:
-    from .search.campaign import search_campaign
+    from .search.campaign import demo_path, search_campaign
+
+    if args.demo == bool(args.campaign):
+        raise ConfigError("search: give a campaign file (CAMPAIGN.toml) or --demo, not both or neither")
 
     def progress(cell):
         name, horizon, n, found = cell
         print(f"searched {name} T={horizon} n={n}: {'found' if found else 'nothing'} "
               f"({found.evaluations} evaluations)", file=sys.stderr)
 
-    outcome = search_campaign(args.campaign, claim=args.claim, method=args.method, out=args.out,
+    outcome = search_campaign(demo_path() if args.demo else args.campaign, claim=args.claim, method=args.method,
+                              out=args.out,
                               progress=None if args.json or not sys.stderr.isatty() else progress)
     if args.json:
         print(json.dumps(outcome.as_dict(), indent=2))

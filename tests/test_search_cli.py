@@ -99,3 +99,20 @@ def test_search_bad_campaign_exit_2(tmp_path, capsys):
     assert code == 2 and err.count("\n") == 1 and "eta" in err
     code, _, err = _cli(capsys, "search", tmp_path / "missing.toml")
     assert code == 2 and err.count("\n") == 1
+
+
+def test_demo_finds_saves_and_replays_the_flawed_learner(tmp_path, capsys):
+    """The bundled demo: flawed-hot-hedge with its own (false) claims; replay with the fixed learner passes."""
+    out_file = tmp_path / "fleet.npz"
+    code, out, _ = _cli(capsys, "search", "--demo", "--out", out_file)
+    assert code == 1 and "flawed-hot-hedge" in out and out_file.exists()
+    code, out, _ = _cli(capsys, "replay", out_file)
+    assert code == 1 and "STILL VIOLATES" in out
+    code, out, _ = _cli(capsys, "replay", out_file, "--learner", "hedge")
+    assert code == 0 and "no longer shown to violate" in out
+
+
+@pytest.mark.parametrize("argv", [["search"], ["search", "--demo", "x.toml"]])
+def test_search_needs_exactly_one_campaign(capsys, argv):
+    code, out, err = _cli(capsys, *argv)
+    assert code == 2 and err.count("\n") == 1 and "--demo" in err

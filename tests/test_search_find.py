@@ -291,3 +291,31 @@ def test_heavy_tail_learner_is_broken_within_10_examples():
     lo = sst.beta.ppf(0.0005, found.violations, found.replicas - found.violations + 1)
     hi = sst.beta.ppf(0.9995, found.violations + 1, found.replicas - found.violations)
     assert lo <= exact <= hi
+
+
+def test_expectation_claims_hot_hedge_broken_compliant_hedge_not():
+    """Expectation claims: accepted when the anytime-valid lower confidence bound on the mean (empirical-
+    Bernstein confidence sequence over the metric's exact range on the sequence) exceeds the bound.
+
+    flawed-hot-hedge (learners issue, heat 10) carries Hedge's expected-regret claim sqrt(T ln n / 2)
+    (Cesa-Bianchi and Lugosi 2006, Theorem 2.2) which it breaks; the exact mixture regret on the found
+    sequence, computed here from the textbook formula, lies above the bound. Hedge at its published
+    tuning keeps it on every sequence, so its search must come back empty (false counterexample
+    probability <= 0.05 by construction; fixed seeds)."""
+    hot = get("flawed-hot-hedge")
+    claim = next(c for c in hot.claims if c.kind == "expectation")
+    found = search(hot, claim.name, T, N, max_examples=30, replicas=256, seed=0)
+    assert found and found.mean is not None and found.evidence["lower"] > claim.bound_at(T, N)
+    eta = 10 * math.sqrt(8 * math.log(N) / T)
+    cum, mixture = np.zeros(N), 0.0
+    for row in found.losses:
+        w = np.exp(-eta * (cum - cum.min()))
+        mixture += float(w @ row / w.sum())
+        cum += row
+    exact_mean = mixture - cum.min()           # E[regret] of sampled Hedge = the mixture's regret
+    assert exact_mean > claim.bound_at(T, N)
+    assert found.ci[0] <= exact_mean <= found.ci[1]
+    fair = get("hedge")
+    out = search(fair, next(c for c in fair.claims if c.kind == "expectation"), T, N, max_examples=30,
+                 replicas=256, seed=0)
+    assert not out

@@ -54,6 +54,13 @@ class CampaignSearch:
         return out
 
 
+def demo_path():
+    """The bundled search demo (``boundbreaker search --demo``)."""
+    from pathlib import Path
+
+    return Path(__file__).resolve().parent.parent / "demos" / "model-fleet.toml"
+
+
 def search_campaign(path, claim: str | None = None, method: str | None = None, out: str | None = None,
                     progress=None) -> CampaignSearch:
     import adversaries
