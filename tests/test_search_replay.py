@@ -8,11 +8,11 @@ import numpy as np
 import pytest
 
 from harness.claims import Claim
-from harness.cli import main
 from harness.errors import ConfigError
 from harness.learners import get
 from harness.search import Counterexample, replay, search
 from harness.search.regression import check_fixed, counterexample_files, regression_tests
+from helpers import run_cli
 
 T, N = 1000, 2
 CLAIM = Claim("regret", "sqrt(T * ln(n) / 2) + sqrt(T * ln(1 / delta) / 2)", delta=0.05, name="hedge hp",
@@ -96,19 +96,13 @@ def test_generated_regression_tests_run_under_pytest(saved, tmp_path):
     assert outcome == "failed" and "STILL VIOLATES" in text
 
 
-def _cli(capsys, *argv):
-    code = main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return code, out, err
-
-
 def test_replay_cli_exit_codes(saved, capsys):
     _, path = saved
-    code, out, err = _cli(capsys, "replay", path)
+    code, out, err = run_cli(capsys, "replay", path)
     assert code == 1 and "STILL VIOLATES" in out and err == ""
-    code, out, _ = _cli(capsys, "replay", path, "--learner", "hedge")
+    code, out, _ = run_cli(capsys, "replay", path, "--learner", "hedge")
     assert code == 0 and "no longer shown to violate" in out
-    code, out, _ = _cli(capsys, "replay", path, "--learner", "hedge", "--learner-param", f"eta={HOT_ETA}",
+    code, out, _ = run_cli(capsys, "replay", path, "--learner", "hedge", "--learner-param", f"eta={HOT_ETA}",
                         "--json", "--replicas", "200", "--seed", "4")
     data = json.loads(out)
     assert code == 1 and data["still_violates"] and data["replicas"] == 200 and data["seed"] == 4
@@ -125,12 +119,12 @@ def test_replay_cli_exit_codes(saved, capsys):
 ])
 def test_replay_cli_bad_input_is_one_line_exit_2(saved, capsys, tmp_path, argv, text):
     argv = [a.replace("{path}", str(saved[1])) for a in argv]
-    code, out, err = _cli(capsys, *argv)
+    code, out, err = run_cli(capsys, *argv)
     assert code == 2 and out == "" and err.count("\n") == 1 and text in err
 
 
 def test_replay_cli_refuses_a_hostile_file(tmp_path, capsys):
     bad = tmp_path / "bad.npz"
     np.savez(bad, losses=np.full((3, 2), np.nan), metadata=np.array("{}"))
-    code, out, err = _cli(capsys, "replay", bad)
+    code, out, err = run_cli(capsys, "replay", bad)
     assert code == 2 and "bad.npz" in err and err.count("\n") == 1
