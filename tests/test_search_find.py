@@ -142,25 +142,25 @@ class CoinSwitcher(Learner):
 
 
 def test_no_false_counterexample_on_a_claim_that_holds_with_no_slack():
-    """30 searches (20 by random sampling, 10 by Hypothesis, which also exercises its rounds of
+    """20 searches (14 by random sampling, 6 by Hypothesis, which also exercises its rounds of
     confirmation after a rejected one) on the boundary learner: false counterexamples stay rare.
 
     Each search's false-counterexample probability is <= sum_{j<=5} 0.05 * 6 / (pi^2 j^2) = 0.0445.
-    Failing needs >= 6 of 30: P <= 1 - Binom(30, 0.0445).cdf(5) = 0.003 (false failure). Without
-    confirmation on fresh replicas the screening alone passes several candidates per search (checked
-    below), so almost every search would report a false counterexample.
+    Failing needs >= 6 of 20: P <= 1 - Binom(20, 0.0445).cdf(5) = 0.0003 (false failure). Without
+    confirmation on fresh replicas the screening alone passes candidates in most searches (checked
+    below), and each such search would have reported a false counterexample.
     """
     claim = Claim("switches", 0, delta=0.05, name="never switches, w.p. 0.95")
     false, screened_in = 0, 0
-    for seed in range(30):
-        method = "random" if seed < 20 else "hypothesis"
-        out = search(CoinSwitcher(0.05), claim, 20, 2, max_examples=40, replicas=256, seed=seed,
-                     method=method, shrink_budget=20)
+    for seed in range(20):
+        method = "random" if seed < 14 else "hypothesis"
+        out = search(CoinSwitcher(0.05), claim, 20, 2, max_examples=30, replicas=256, seed=seed,
+                     method=method, shrink_budget=15)
         false += bool(out)
-        screened_in += out.confirmations if not out else out.settings["confirmations"]
-    assert 1 - sst.binom.cdf(5, 30, 0.0445) < 0.004
+        screened_in += (out.confirmations if not out else out.settings["confirmations"]) > 0
+    assert 1 - sst.binom.cdf(5, 20, 0.0445) < 0.0004
     assert false < 6
-    assert screened_in >= 10   # the multiplicity is real: uncorrected screening would have "found" many
+    assert screened_in >= 8   # the multiplicity is real: uncorrected screening would have "found" these
 
 
 def test_always_claim_is_broken_by_one_replayable_violation():
