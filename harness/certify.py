@@ -71,6 +71,7 @@ VERDICTS = ("pass", "fail", "inconclusive")
 STATEMENT = ("A pass means that no violation was found on this battery (these adversaries, horizons and numbers "
              "of actions, at the stated confidence); it is never a proof that the claim holds.")
 MULTIPLICITY = "Bonferroni over all cells"
+NOT_APPLICABLE = "claim made for oblivious adversaries only; this adversary is adaptive"
 REPLAYS_KEPT = 3  # violating replicas recorded per cell
 
 
@@ -190,6 +191,7 @@ class Certificate:
     wall_time_s: float
     statement: str = STATEMENT
     multiplicity: str = MULTIPLICITY
+    not_applicable: tuple = ()   # (adversary, claim) pairs not judged: see Claim.scope
 
     @property
     def verdict(self) -> str:
@@ -217,6 +219,7 @@ class Certificate:
             "learner": self.learner, "adversaries": list(self.adversaries), "claims": list(self.claims),
             "horizons": list(self.horizons), "n_actions": list(self.n_actions), "versions": self.versions,
             "created": self.created, "wall_time_s": self.wall_time_s,
+            "not_applicable": [dict(x) for x in self.not_applicable],
             "cells": [c.as_dict() for c in self.cells],
         }
 
@@ -289,13 +292,20 @@ def certify(learner, claims, adversaries, horizons, n_actions, confidence=0.95, 
     switching_cost = validate.real("switching_cost", switching_cost, low=0.0)
     n_jobs = config_n_jobs("n_jobs", n_jobs)
 
-    groups = []
+    groups, not_applicable = [], []
     for a, adversary in enumerate(adversaries):
+        applicable = tuple(c for c in claims if c.applies_to(adversary))
+        not_applicable += [{"adversary_label": labels[a], "claim_name": c.name, "reason": NOT_APPLICABLE}
+                           for c in claims if not c.applies_to(adversary)]
         for T in horizons:
             for n in n_actions:
-                groups.append(_Group(a, adversary, labels[a], T, n, _group_seed(seed, a, T, n), claims,
-                                     switching_cost))
-    total_cells = len(groups) * len(claims)
+                if applicable:
+                    groups.append(_Group(a, adversary, labels[a], T, n, _group_seed(seed, a, T, n), applicable,
+                                         switching_cost))
+    total_cells = sum(len(g.claims) for g in groups)
+    if not total_cells:
+        raise ConfigError("claims: none applies to any adversary of the battery (oblivious-only claims need "
+                          "an oblivious adversary); add one")
     cell_confidence = stats.bonferroni(confidence, total_cells)
     for g in groups:
         g.prepare(cell_confidence, max_replicas, chunk)
@@ -317,7 +327,7 @@ def certify(learner, claims, adversaries, horizons, n_actions, confidence=0.95, 
         confidence=confidence, cell_confidence=cell_confidence, max_replicas=max_replicas, seed=seed,
         switching_cost=switching_cost, chunk=chunk, campaign=info, versions=versions(),
         created=datetime.now(timezone.utc).isoformat(timespec="seconds"),
-        wall_time_s=round(time.perf_counter() - started, 3))
+        wall_time_s=round(time.perf_counter() - started, 3), not_applicable=tuple(not_applicable))
 
 
 def certify_campaign(campaign, n_jobs=None, progress=False) -> Certificate:
@@ -668,8 +678,15 @@ def format_table(cert) -> str:
             tail.append(f"        replay {c.replay_hint()}")
     if len(cert.failures()) > 5:
         tail.append(f"  ... and {len(cert.failures()) - 5} more failing cells (see the certificate)")
+    tail += not_applicable_lines(cert)
     tail.append(cert.statement)
     return "\n".join(head + body + tail)
+
+
+def not_applicable_lines(cert) -> list:
+    """One line per claim that was not judged on some adversary (Claim.scope)."""
+    return [f"  not judged: claim {row['claim_name']!r} on {row['adversary_label']}: {row['reason']}"
+            for row in cert.not_applicable]
 
 
 def format_markdown(cert) -> str:
@@ -695,6 +712,10 @@ def format_markdown(cert) -> str:
             out.append(f"- {c.where}: {c.summary()}.")
             if c.replay:
                 out.append(f"  Replay {c.replay_hint()}.")
+    if cert.not_applicable:
+        out += ["", "## Not judged", ""]
+        out += [f"- claim `{row['claim_name']}` on {row['adversary_label']}: {row['reason']}."
+                for row in cert.not_applicable]
     out += ["", "## How to read this", "",
             "A high-probability claim fails when its violation rate is shown above delta, passes when it is "
             "shown below delta, and is inconclusive when the replicas settle neither. An expectation claim does "
@@ -737,6 +758,7 @@ _TOP_TYPES = {
     "cell_confidence": float, "multiplicity": str, "seed": int, "max_replicas": int, "chunk": int,
     "switching_cost": float, "campaign": dict, "learner": dict, "adversaries": list, "claims": list,
     "horizons": list, "n_actions": list, "versions": dict, "created": str, "wall_time_s": float, "cells": list,
+    "not_applicable": list,
 }
 _REPLAY_KEYS = ("replica", "chunk_index", "chunk_replicas", "row", "value")
 
@@ -786,6 +808,14 @@ def _read_cell(data, source) -> Cell:
     return Cell(**values)
 
 
+def _read_not_applicable(rows, source) -> tuple:
+    keys = {"adversary_label", "claim_name", "reason"}
+    for j, row in enumerate(rows):
+        if not isinstance(row, dict) or set(row) != keys or not all(isinstance(v, str) for v in row.values()):
+            raise ConfigError(f"{source}: not_applicable[{j}]: must hold the strings {', '.join(sorted(keys))}")
+    return tuple(dict(r) for r in rows)
+
+
 def _read_certificate(data, source) -> Certificate:
     if not isinstance(data, dict):
         raise ConfigError(f"{source}: must hold a JSON object; save certificates with Certificate.save")
@@ -814,7 +844,7 @@ def _read_certificate(data, source) -> Certificate:
         max_replicas=values["max_replicas"], seed=values["seed"], switching_cost=values["switching_cost"],
         chunk=values["chunk"], campaign=values["campaign"], versions=values["versions"],
         created=values["created"], wall_time_s=values["wall_time_s"], statement=values["statement"],
-        multiplicity=values["multiplicity"])
+        multiplicity=values["multiplicity"], not_applicable=_read_not_applicable(values["not_applicable"], source))
     if values["verdict"] != cert.verdict:
         raise ConfigError(f"{source}: verdict: says {values['verdict']!r} but its cells give {cert.verdict!r}; "
                           f"the file was edited")
