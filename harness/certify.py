@@ -63,7 +63,7 @@ from . import stats, validate
 from .claims import Claim, metric_range
 from .config import int_list, n_jobs as config_n_jobs
 from .errors import ConfigError
-from .runner import DEFAULT_CHUNK, _check_adversary, _check_learner, play_chunk, versions
+from .runner import DEFAULT_CHUNK, _check_adversary, _check_learner, dispatch, play_chunk, versions
 
 FORMAT = "boundbreaker-certificate"
 FORMAT_VERSION = 1
@@ -267,7 +267,7 @@ class Certificate:
 
 def certify(learner, claims, adversaries, horizons, n_actions, confidence=0.95, max_replicas=20000, seed=0,
             n_jobs=1, *, switching_cost=0.0, labels=None, chunk=DEFAULT_CHUNK, progress=False,
-            campaign=None) -> Certificate:
+            campaign=None, checkpoint=None) -> Certificate:
     """Judge ``claims`` (a Claim, a list of them, or None for the learner's own
     ``claims``) on every (adversary, horizon, n_actions) of the battery.
 
@@ -275,8 +275,10 @@ def certify(learner, claims, adversaries, horizons, n_actions, confidence=0.95, 
     ``n_actions`` are integers or lists of them. ``confidence`` is family-wise
     over all cells. ``labels`` optionally names the adversaries in tables.
     ``campaign`` (used by :func:`certify_campaign`) records the campaign
-    file's name, path and digest. See the module docstring for the sampling,
-    the verdicts and the seeding.
+    file's name, path and digest. ``checkpoint=DIR`` saves every finished
+    chunk there; rerunning the same certification resumes from them and
+    reaches the same certificate (see :mod:`harness.checkpoint`). See the
+    module docstring for the sampling, the verdicts and the seeding.
     """
     started = time.perf_counter()
     _check_learner(learner)
@@ -310,7 +312,13 @@ def certify(learner, claims, adversaries, horizons, n_actions, confidence=0.95, 
     for g in groups:
         g.prepare(cell_confidence, max_replicas, chunk)
 
-    _play(learner, groups, n_jobs, progress, total_cells)
+    store = None
+    if checkpoint is not None:
+        from .checkpoint import ChunkStore
+        store = ChunkStore(checkpoint, {"certify": {"learner": learner.spec(),
+                                                    "adversaries": [a.spec() for a in adversaries],
+                                                    "seed": seed, "chunk": chunk, "versions": versions()}})
+    _play(learner, groups, n_jobs, progress, total_cells, store)
 
     cells = []
     for g in groups:
@@ -330,14 +338,14 @@ def certify(learner, claims, adversaries, horizons, n_actions, confidence=0.95, 
         wall_time_s=round(time.perf_counter() - started, 3), not_applicable=tuple(not_applicable))
 
 
-def certify_campaign(campaign, n_jobs=None, progress=False) -> Certificate:
+def certify_campaign(campaign, n_jobs=None, progress=False, checkpoint=None) -> Certificate:
     """Certify a :class:`harness.config.Campaign` (a loaded campaign file)."""
     learner = campaign.build_learner()
     return certify(learner, list(campaign.claims), campaign.build_adversaries(), campaign.horizons,
                    campaign.n_actions, confidence=campaign.confidence, max_replicas=campaign.max_replicas,
                    seed=campaign.seed, n_jobs=campaign.n_jobs if n_jobs is None else n_jobs,
                    switching_cost=campaign.switching_cost, labels=[s["label"] for s in campaign.adversary_specs],
-                   progress=progress,
+                   progress=progress, checkpoint=checkpoint,
                    campaign={"name": campaign.name, "path": str(campaign.path), "digest": campaign.digest})
 
 
@@ -556,13 +564,17 @@ class _Group:
             mean_high=test.high if expectation else None, metric_range=rng if expectation else None)
 
 
+def _chunk_name(group, index: int) -> str:
+    return f"group-{group.adversary_index}-T{group.horizon}-n{group.n_actions}-chunk-{index:06d}"
+
+
 def _prior_centre(claim) -> float:
     """Where the interval's mixing prior sits for an "always" claim (validity does not depend on it)."""
     d = claim.delta
     return d if isinstance(d, (int, float)) and 0 < d < 1 else 0.05
 
 
-def _play(learner, groups, n_jobs, progress, total_cells):
+def _play(learner, groups, n_jobs, progress, total_cells, store=None):
     show = progress and sys.stderr.isatty()
     rounds = 0
     while True:
@@ -571,13 +583,19 @@ def _play(learner, groups, n_jobs, progress, total_cells):
             break
         rounds += 1
         plan = [(g, k, size) for g in active for k, size in g.next_batch()]
-        calls = [(learner, g.adversary, g.horizon, g.n_actions, g.seed, k, size) for g, k, size in plan]
-        if n_jobs == 1 or len(calls) == 1:
-            results = [play_chunk(*c) for c in calls]
-        else:
-            from joblib import Parallel, delayed
-            results = Parallel(n_jobs=n_jobs)(delayed(play_chunk)(*c) for c in calls)
-        by_group = {}
+        results, todo = [None] * len(plan), []
+        for i, (g, k, size) in enumerate(plan):
+            saved = store.get(_chunk_name(g, k), size) if store else None
+            if saved is not None:
+                results[i] = saved
+            else:
+                todo.append((i, (learner, g.adversary, g.horizon, g.n_actions, g.seed, k, size)))
+        for i, regret, switches in dispatch(todo, n_jobs):
+            if store is not None:
+                g, k, _ = plan[i]
+                store.save(_chunk_name(g, k), regret, switches)  # at once: an interruption loses nothing
+            results[i] = (regret, switches)
+        by_group = {}  # in plan order, so results never depend on which chunk finished first
         for (g, _, _), res in zip(plan, results):
             by_group.setdefault(id(g), (g, []))[1].append(res)
         for g, res in by_group.values():
