@@ -74,7 +74,7 @@ def _scaled(args):
         return nullcontext()
     from .cluster import cluster
 
-    if args.jobs == 1:
+    if args.jobs in (1, None):
         args.jobs = -1  # a cluster is pointless one chunk at a time
     return cluster(args.cluster)
 
@@ -265,8 +265,7 @@ def _add_certify(sub):
     p.add_argument("--out", metavar="FILE", help="write the certificate JSON to FILE (no report directory "
                                                    "unless --report is also given)")
     p.add_argument("--jobs", type=int, default=None, help="parallel jobs (-1: all cores); overrides the campaign")
-    p.add_argument("--cluster", metavar="ADDRESS",
-                   help="run chunks on a dask cluster: 'local' or a scheduler address tcp://host:8786")
+    _add_scale_options(p)
     p.set_defaults(handler=_cmd_certify)
 
 
@@ -288,10 +287,8 @@ def _cmd_certify(args) -> int:
     if args.out:  # fail on an unwritable path before the work, not after
         _writable(args.out, "--out")
     report = args.report or (None if args.out else os.path.join("reports", _slug(campaign.name)))
-    if args.cluster and args.jobs is None:
-        args.jobs = -1
     with _scaled(args):
-        cert = certify_campaign(campaign, n_jobs=args.jobs, progress=True)
+        cert = certify_campaign(campaign, n_jobs=args.jobs, progress=True, checkpoint=args.checkpoint)
     print(cert.table())
     if args.out:
         written.append(cert.save(args.out))
