@@ -78,9 +78,12 @@ def test_adaptive_parameters_are_searched_shrunk_saved_and_replayed(tmp_path):
     path = found.save(tmp_path / "chase.npz")
     back = Counterexample.load(path)
     assert back.adversary == found.adversary and back.genome is None
-    again = replay(path, get("ftl"))
+    with pytest.raises(ConfigError, match="does not import code named in a file"):
+        replay(path, get("ftl"))                                     # module:Class in a file: never imported
+    chase = ParamChase(**back.adversary["params"])
+    again = replay(path, get("ftl"), adversary=chase)
     assert again.still_violates and again.violations == found.violations
-    assert not replay(path, get("hedge")).still_violates           # Hedge is not fooled by the chase
+    assert not replay(path, get("hedge"), adversary=chase).still_violates   # Hedge is not fooled by it
 
 
 def test_compliant_hedge_against_adaptive_adversaries_is_not_broken():
@@ -91,6 +94,17 @@ def test_compliant_hedge_against_adaptive_adversaries_is_not_broken():
     out = search(get("hedge"), claim, 200, 2, max_examples=25, replicas=64, seed=1, method="cem",
                  adaptive={NAME: {"high": (0.0, 1.0), "low": (0.0, 1.0)}})
     assert not out and out.evaluations == 25
+
+
+def test_registered_adaptive_counterexample_replays_from_the_file_alone(tmp_path):
+    """leader-flip (adversaries issue) against FTL: the file names a registered adversary, so replay
+    rebuilds it; FTL pays about 1 per round against it (invented cap T/4)."""
+    claim = Claim("regret", "T / 4", delta=0.05, name="FTL regret <= T/4 (invented)")
+    found = search(get("ftl"), claim, 200, 3, max_examples=20, replicas=8, seed=0, adaptive=["leader-flip"],
+                   oblivious=False)
+    assert found and found.adversary["name"] == "leader-flip"
+    path = found.save(tmp_path / "flip.npz")
+    assert replay(path, get("ftl")).still_violates
 
 
 def test_realized_losses_replay_the_chunk_exactly():

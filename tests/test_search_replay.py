@@ -11,6 +11,7 @@ from harness.claims import Claim
 from harness.errors import ConfigError
 from harness.learners import get
 from harness.search import Counterexample, replay, search
+from harness.search.replay import learner_from_spec
 from harness.search.regression import check_fixed, counterexample_files, regression_tests
 from helpers import run_cli
 
@@ -75,7 +76,8 @@ def test_generated_regression_tests_run_under_pytest(saved, tmp_path):
     shutil.copy(path, folder / "hot-hedge.npz")
     (tmp_path / "test_generated.py").write_text(
         "from harness.learners import get\n"
-        "from harness.search.regression import regression_tests\n"
+        "from harness.search.replay import learner_from_spec
+from harness.search.regression import regression_tests\n"
         f"test_fixed = regression_tests({str(folder)!r}, learner=get('hedge'))\n"
         f"test_returned = regression_tests({str(folder)!r})\n")
 
@@ -121,6 +123,26 @@ def test_replay_cli_bad_input_is_one_line_exit_2(saved, capsys, tmp_path, argv, 
     argv = [a.replace("{path}", str(saved[1])) for a in argv]
     code, out, err = run_cli(capsys, *argv)
     assert code == 2 and out == "" and err.count("\n") == 1 and text in err
+
+
+@pytest.mark.parametrize("learner", [
+    {"name": None, "class": "os:system", "params": {"command": "echo pwned"}},
+    {"name": "os:system", "class": "os:system", "params": {}},
+    {"name": "budget-cap", "class": "harness.learners.wrappers:BudgetCap",
+     "params": {"learner": {"name": None, "class": "os:system", "params": {}}, "budget": 3}},
+    {"name": "budget-cap", "class": "harness.learners.wrappers:BudgetCap",
+     "params": {"learner": "os:system", "budget": 3}},
+])
+def test_replay_never_imports_code_named_in_a_file(saved, tmp_path, capsys, learner):
+    """A file that names module:Class (at the top or inside a wrapper) is not rebuilt from the file."""
+    found = Counterexample.load(saved[1])
+    found.learner = learner
+    path = found.save(tmp_path / "evil.npz")
+    with pytest.raises(ConfigError, match="does not import code named in a file"):
+        learner_from_spec(Counterexample.load(path).learner)
+    code, out, err = run_cli(capsys, "replay", path)
+    assert code == 2 and "does not import code" in err and err.count("\n") == 1
+    assert "pwned" not in out + err
 
 
 def test_replay_cli_refuses_a_hostile_file(tmp_path, capsys):

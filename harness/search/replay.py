@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import os
+import re
 from dataclasses import dataclass
 
 from ..errors import ConfigError
@@ -52,12 +53,15 @@ class ReplayResult:
 
 
 def replay(counterexample, learner, replicas: int | None = None, seed: int | None = None,
-           confidence: float | None = None, n_jobs: int = 1) -> ReplayResult:
+           confidence: float | None = None, n_jobs: int = 1, adversary=None) -> ReplayResult:
     """Rerun ``learner`` on a saved counterexample (a path or a :class:`Counterexample`).
 
     By default the confirmation seed and replica count recorded in the file
     are reused, so an unchanged learner reproduces the recorded result
-    exactly; pass ``seed`` for fresh replicas.
+    exactly; pass ``seed`` for fresh replicas. An adaptive counterexample's
+    adversary is rebuilt from the file when it is a registered name;
+    otherwise pass it as ``adversary`` (boundbreaker never imports code
+    named in a file).
     """
     from .. import validate
     from ..runner import run
@@ -72,9 +76,14 @@ def replay(counterexample, learner, replicas: int | None = None, seed: int | Non
         raise ConfigError(f"learner: expected a harness.Learner, got {type(learner).__name__}")
     switching_cost = float(ce.settings.get("switching_cost") or 0.0)
     if ce.adversary is not None:
-        adversary = adversary_from_record(ce.adversary)
+        if adversary is None:
+            adversary = adversary_from_record(ce.adversary)
+        elif not getattr(adversary, "adaptive", False):
+            raise ConfigError("adversary: the counterexample is adaptive; pass the adaptive adversary it names")
         value_range = claim_metric_range(ce.claim.metric, ce.horizon, switching_cost)
     else:
+        if adversary is not None:
+            raise ConfigError("adversary: this counterexample is a fixed loss sequence; replay it without one")
         adversary = Sequence(ce.losses)
         value_range = metric_range(ce.losses, ce.claim.metric, switching_cost)
     result = run(learner, adversary, ce.horizon, ce.n_actions, replicas=replicas, seed=seed,
@@ -88,29 +97,57 @@ def replay(counterexample, learner, replicas: int | None = None, seed: int | Non
                         claim=ce.claim, bound=bound, mean=mean, evidence=j.evidence, counterexample=ce)
 
 
-def learner_from_spec(spec: dict):
-    """Rebuild the learner a counterexample file names (registry name, else module:Class)."""
-    from ..learners import get
+_IMPORT_PATH = re.compile(r"^[A-Za-z_][\w.]*:[A-Za-z_][\w.]*$")
 
-    name = spec.get("name") or spec.get("class")
-    params = spec.get("params") or {}
+
+def _check_file_spec(spec: dict, registry, kind: str, option: str) -> None:
+    """Refuse to rebuild from a file anything that would import code: only registered names.
+
+    A counterexample file may come from anywhere; naming ``module:Class`` in it
+    (at the top or inside a wrapper's parameters) would make replay import and
+    call that code. Such objects must be named by the user instead.
+    """
+    def walk(value, where):
+        if isinstance(value, dict):
+            if "class" in value and value.get("name") not in registry.names():
+                raise ConfigError(f"{kind}: the file names {value.get('class')!r} at {where}, which is not a "
+                                  f"registered name; boundbreaker does not import code named in a file: "
+                                  f"give it yourself ({option})")
+            for k, v in value.items():
+                walk(v, f"{where}.{k}")
+        elif isinstance(value, (list, tuple)):
+            for i, v in enumerate(value):
+                walk(v, f"{where}[{i}]")
+        elif isinstance(value, str) and _IMPORT_PATH.match(value):
+            raise ConfigError(f"{kind}: the file names {value!r} at {where}; boundbreaker does not import code "
+                              f"named in a file: give it yourself ({option})")
+
+    name = spec.get("name")
+    if name not in registry.names():
+        shown = name or spec.get("class")
+        raise ConfigError(f"{kind}: the file names {shown!r}, not a registered {kind}; boundbreaker does not "
+                          f"import code named in a file: give it yourself ({option})")
+    walk(spec.get("params") or {}, "params")
+
+
+def learner_from_spec(spec: dict):
+    """Rebuild the learner a counterexample file names: registered names only (see _check_file_spec)."""
+    from ..learners import REGISTRY, get
+
+    _check_file_spec(spec, REGISTRY, "learner", "--learner NAME|module:Class, or pass a learner")
     try:
-        return get(name, **params)
+        return get(spec["name"], **(spec.get("params") or {}))
     except ConfigError as exc:
         raise ConfigError(f"learner: cannot rebuild the file's learner ({exc}); name one explicitly "
                           f"(--learner NAME|module:Class, or pass a learner)") from None
 
 
 def adversary_from_record(record: dict):
-    """Rebuild an adaptive counterexample's adversary (registry name, else module:Class)."""
+    """Rebuild an adaptive counterexample's adversary: registered names only (see _check_file_spec)."""
     import adversaries
 
+    _check_file_spec(record, adversaries.REGISTRY, "adversary", "pass adversary= to replay")
     try:
         return adversaries.get(record["name"], **record["params"])
     except ConfigError as exc:
-        if record.get("class") and record["class"] != record["name"]:
-            try:
-                return adversaries.get(record["class"], **record["params"])
-            except ConfigError:
-                pass
         raise ConfigError(f"adversary: cannot rebuild the file's adaptive adversary ({exc})") from None
