@@ -76,8 +76,7 @@ def test_generated_regression_tests_run_under_pytest(saved, tmp_path):
     shutil.copy(path, folder / "hot-hedge.npz")
     (tmp_path / "test_generated.py").write_text(
         "from harness.learners import get\n"
-        "from harness.search.replay import learner_from_spec
-from harness.search.regression import regression_tests\n"
+        "from harness.search.regression import regression_tests\n"
         f"test_fixed = regression_tests({str(folder)!r}, learner=get('hedge'))\n"
         f"test_returned = regression_tests({str(folder)!r})\n")
 
