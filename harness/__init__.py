@@ -14,12 +14,14 @@ from .runner import RunResult, run
 from .claims import Claim
 from .certify import Certificate, certify
 from .landscape import landscape
+from .search import Counterexample, replay, search
 
 __version__ = "0.1.0"
 
 __all__ = [
     "Learner", "Adversary", "History", "per_replica", "run", "RunResult",
     "BoundbreakerError", "ConfigError", "LearnerFault", "AdversaryFault",
+    "search", "Counterexample", "replay",
     "Claim", "certify", "Certificate",
     "landscape",
 ]

@@ -63,7 +63,7 @@ from . import stats, validate
 from .claims import Claim, metric_range
 from .config import int_list, n_jobs as config_n_jobs
 from .errors import ConfigError
-from .runner import DEFAULT_CHUNK, _check_adversary, _check_learner, play_chunk, versions
+from .runner import DEFAULT_CHUNK, _check_adversary, _check_learner, dispatch, play_chunk, versions
 
 FORMAT = "boundbreaker-certificate"
 FORMAT_VERSION = 1
@@ -71,6 +71,7 @@ VERDICTS = ("pass", "fail", "inconclusive")
 STATEMENT = ("A pass means that no violation was found on this battery (these adversaries, horizons and numbers "
              "of actions, at the stated confidence); it is never a proof that the claim holds.")
 MULTIPLICITY = "Bonferroni over all cells"
+NOT_APPLICABLE = "claim made for oblivious adversaries only; this adversary is adaptive"
 REPLAYS_KEPT = 3  # violating replicas recorded per cell
 
 
@@ -190,6 +191,7 @@ class Certificate:
     wall_time_s: float
     statement: str = STATEMENT
     multiplicity: str = MULTIPLICITY
+    not_applicable: tuple = ()   # (adversary, claim) pairs not judged: see Claim.scope
 
     @property
     def verdict(self) -> str:
@@ -217,6 +219,7 @@ class Certificate:
             "learner": self.learner, "adversaries": list(self.adversaries), "claims": list(self.claims),
             "horizons": list(self.horizons), "n_actions": list(self.n_actions), "versions": self.versions,
             "created": self.created, "wall_time_s": self.wall_time_s,
+            "not_applicable": [dict(x) for x in self.not_applicable],
             "cells": [c.as_dict() for c in self.cells],
         }
 
@@ -264,7 +267,7 @@ class Certificate:
 
 def certify(learner, claims, adversaries, horizons, n_actions, confidence=0.95, max_replicas=20000, seed=0,
             n_jobs=1, *, switching_cost=0.0, labels=None, chunk=DEFAULT_CHUNK, progress=False,
-            campaign=None) -> Certificate:
+            campaign=None, checkpoint=None) -> Certificate:
     """Judge ``claims`` (a Claim, a list of them, or None for the learner's own
     ``claims``) on every (adversary, horizon, n_actions) of the battery.
 
@@ -272,8 +275,10 @@ def certify(learner, claims, adversaries, horizons, n_actions, confidence=0.95, 
     ``n_actions`` are integers or lists of them. ``confidence`` is family-wise
     over all cells. ``labels`` optionally names the adversaries in tables.
     ``campaign`` (used by :func:`certify_campaign`) records the campaign
-    file's name, path and digest. See the module docstring for the sampling,
-    the verdicts and the seeding.
+    file's name, path and digest. ``checkpoint=DIR`` saves every finished
+    chunk there; rerunning the same certification resumes from them and
+    reaches the same certificate (see :mod:`harness.checkpoint`). See the
+    module docstring for the sampling, the verdicts and the seeding.
     """
     started = time.perf_counter()
     _check_learner(learner)
@@ -289,18 +294,31 @@ def certify(learner, claims, adversaries, horizons, n_actions, confidence=0.95, 
     switching_cost = validate.real("switching_cost", switching_cost, low=0.0)
     n_jobs = config_n_jobs("n_jobs", n_jobs)
 
-    groups = []
+    groups, not_applicable = [], []
     for a, adversary in enumerate(adversaries):
+        applicable = tuple(c for c in claims if c.applies_to(adversary))
+        not_applicable += [{"adversary_label": labels[a], "claim_name": c.name, "reason": NOT_APPLICABLE}
+                           for c in claims if not c.applies_to(adversary)]
         for T in horizons:
             for n in n_actions:
-                groups.append(_Group(a, adversary, labels[a], T, n, _group_seed(seed, a, T, n), claims,
-                                     switching_cost))
-    total_cells = len(groups) * len(claims)
+                if applicable:
+                    groups.append(_Group(a, adversary, labels[a], T, n, _group_seed(seed, a, T, n), applicable,
+                                         switching_cost))
+    total_cells = sum(len(g.claims) for g in groups)
+    if not total_cells:
+        raise ConfigError("claims: none applies to any adversary of the battery (oblivious-only claims need "
+                          "an oblivious adversary); add one")
     cell_confidence = stats.bonferroni(confidence, total_cells)
     for g in groups:
         g.prepare(cell_confidence, max_replicas, chunk)
 
-    _play(learner, groups, n_jobs, progress, total_cells)
+    store = None
+    if checkpoint is not None:
+        from .checkpoint import ChunkStore
+        store = ChunkStore(checkpoint, {"certify": {"learner": learner.spec(),
+                                                    "adversaries": [a.spec() for a in adversaries],
+                                                    "seed": seed, "chunk": chunk, "versions": versions()}})
+    _play(learner, groups, n_jobs, progress, total_cells, store)
 
     cells = []
     for g in groups:
@@ -317,17 +335,17 @@ def certify(learner, claims, adversaries, horizons, n_actions, confidence=0.95, 
         confidence=confidence, cell_confidence=cell_confidence, max_replicas=max_replicas, seed=seed,
         switching_cost=switching_cost, chunk=chunk, campaign=info, versions=versions(),
         created=datetime.now(timezone.utc).isoformat(timespec="seconds"),
-        wall_time_s=round(time.perf_counter() - started, 3))
+        wall_time_s=round(time.perf_counter() - started, 3), not_applicable=tuple(not_applicable))
 
 
-def certify_campaign(campaign, n_jobs=None, progress=False) -> Certificate:
+def certify_campaign(campaign, n_jobs=None, progress=False, checkpoint=None) -> Certificate:
     """Certify a :class:`harness.config.Campaign` (a loaded campaign file)."""
     learner = campaign.build_learner()
     return certify(learner, list(campaign.claims), campaign.build_adversaries(), campaign.horizons,
                    campaign.n_actions, confidence=campaign.confidence, max_replicas=campaign.max_replicas,
                    seed=campaign.seed, n_jobs=campaign.n_jobs if n_jobs is None else n_jobs,
                    switching_cost=campaign.switching_cost, labels=[s["label"] for s in campaign.adversary_specs],
-                   progress=progress,
+                   progress=progress, checkpoint=checkpoint,
                    campaign={"name": campaign.name, "path": str(campaign.path), "digest": campaign.digest})
 
 
@@ -546,13 +564,17 @@ class _Group:
             mean_high=test.high if expectation else None, metric_range=rng if expectation else None)
 
 
+def _chunk_name(group, index: int) -> str:
+    return f"group-{group.adversary_index}-T{group.horizon}-n{group.n_actions}-chunk-{index:06d}"
+
+
 def _prior_centre(claim) -> float:
     """Where the interval's mixing prior sits for an "always" claim (validity does not depend on it)."""
     d = claim.delta
     return d if isinstance(d, (int, float)) and 0 < d < 1 else 0.05
 
 
-def _play(learner, groups, n_jobs, progress, total_cells):
+def _play(learner, groups, n_jobs, progress, total_cells, store=None):
     show = progress and sys.stderr.isatty()
     rounds = 0
     while True:
@@ -561,13 +583,19 @@ def _play(learner, groups, n_jobs, progress, total_cells):
             break
         rounds += 1
         plan = [(g, k, size) for g in active for k, size in g.next_batch()]
-        calls = [(learner, g.adversary, g.horizon, g.n_actions, g.seed, k, size) for g, k, size in plan]
-        if n_jobs == 1 or len(calls) == 1:
-            results = [play_chunk(*c) for c in calls]
-        else:
-            from joblib import Parallel, delayed
-            results = Parallel(n_jobs=n_jobs)(delayed(play_chunk)(*c) for c in calls)
-        by_group = {}
+        results, todo = [None] * len(plan), []
+        for i, (g, k, size) in enumerate(plan):
+            saved = store.get(_chunk_name(g, k), size) if store else None
+            if saved is not None:
+                results[i] = saved
+            else:
+                todo.append((i, (learner, g.adversary, g.horizon, g.n_actions, g.seed, k, size)))
+        for i, regret, switches in dispatch(todo, n_jobs):
+            if store is not None:
+                g, k, _ = plan[i]
+                store.save(_chunk_name(g, k), regret, switches)  # at once: an interruption loses nothing
+            results[i] = (regret, switches)
+        by_group = {}  # in plan order, so results never depend on which chunk finished first
         for (g, _, _), res in zip(plan, results):
             by_group.setdefault(id(g), (g, []))[1].append(res)
         for g, res in by_group.values():
@@ -668,8 +696,15 @@ def format_table(cert) -> str:
             tail.append(f"        replay {c.replay_hint()}")
     if len(cert.failures()) > 5:
         tail.append(f"  ... and {len(cert.failures()) - 5} more failing cells (see the certificate)")
+    tail += not_applicable_lines(cert)
     tail.append(cert.statement)
     return "\n".join(head + body + tail)
+
+
+def not_applicable_lines(cert) -> list:
+    """One line per claim that was not judged on some adversary (Claim.scope)."""
+    return [f"  not judged: claim {row['claim_name']!r} on {row['adversary_label']}: {row['reason']}"
+            for row in cert.not_applicable]
 
 
 def format_markdown(cert) -> str:
@@ -695,6 +730,10 @@ def format_markdown(cert) -> str:
             out.append(f"- {c.where}: {c.summary()}.")
             if c.replay:
                 out.append(f"  Replay {c.replay_hint()}.")
+    if cert.not_applicable:
+        out += ["", "## Not judged", ""]
+        out += [f"- claim `{row['claim_name']}` on {row['adversary_label']}: {row['reason']}."
+                for row in cert.not_applicable]
     out += ["", "## How to read this", "",
             "A high-probability claim fails when its violation rate is shown above delta, passes when it is "
             "shown below delta, and is inconclusive when the replicas settle neither. An expectation claim does "
@@ -732,6 +771,7 @@ _TOP_TYPES = {
     "cell_confidence": float, "multiplicity": str, "seed": int, "max_replicas": int, "chunk": int,
     "switching_cost": float, "campaign": dict, "learner": dict, "adversaries": list, "claims": list,
     "horizons": list, "n_actions": list, "versions": dict, "created": str, "wall_time_s": float, "cells": list,
+    "not_applicable": list,
 }
 _REPLAY_KEYS = ("replica", "chunk_index", "chunk_replicas", "row", "value")
 
@@ -781,6 +821,14 @@ def _read_cell(data, source) -> Cell:
     return Cell(**values)
 
 
+def _read_not_applicable(rows, source) -> tuple:
+    keys = {"adversary_label", "claim_name", "reason"}
+    for j, row in enumerate(rows):
+        if not isinstance(row, dict) or set(row) != keys or not all(isinstance(v, str) for v in row.values()):
+            raise ConfigError(f"{source}: not_applicable[{j}]: must hold the strings {', '.join(sorted(keys))}")
+    return tuple(dict(r) for r in rows)
+
+
 def _read_certificate(data, source) -> Certificate:
     if not isinstance(data, dict):
         raise ConfigError(f"{source}: must hold a JSON object; save certificates with Certificate.save")
@@ -809,7 +857,7 @@ def _read_certificate(data, source) -> Certificate:
         max_replicas=values["max_replicas"], seed=values["seed"], switching_cost=values["switching_cost"],
         chunk=values["chunk"], campaign=values["campaign"], versions=values["versions"],
         created=values["created"], wall_time_s=values["wall_time_s"], statement=values["statement"],
-        multiplicity=values["multiplicity"])
+        multiplicity=values["multiplicity"], not_applicable=_read_not_applicable(values["not_applicable"], source))
     if values["verdict"] != cert.verdict:
         raise ConfigError(f"{source}: verdict: says {values['verdict']!r} but its cells give {cert.verdict!r}; "
                           f"the file was edited")

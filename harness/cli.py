@@ -74,7 +74,7 @@ def _scaled(args):
         return nullcontext()
     from .cluster import cluster
 
-    if args.jobs == 1:
+    if args.jobs in (1, None):
         args.jobs = -1  # a cluster is pointless one chunk at a time
     return cluster(args.cluster)
 
@@ -179,6 +179,82 @@ def _cmd_bench(args) -> int:
     return EXIT_PASS
 
 
+def _add_search(sub):
+    p = sub.add_parser("search", help="search for a loss sequence that breaks a campaign's claim; save it")
+    p.add_argument("campaign", metavar="CAMPAIGN.toml", nargs="?",
+                   help="campaign file ([learner], [[claims]], [grid], [search])")
+    p.add_argument("--demo", action="store_true",
+                   help="search the bundled demo (a model fleet whose controller is tuned too hot)")
+    p.add_argument("--claim", help="search only this claim (by name); default: every claim, in order")
+    p.add_argument("--method", choices=["hypothesis", "cem", "random"],
+                   help="search method (default: the campaign's [search] method, else hypothesis)")
+    p.add_argument("--out", default=None, metavar="FILE",
+                   help="where to save a counterexample (default: <campaign name>-counterexample.npz)")
+    p.add_argument("--json", action="store_true", help="print JSON instead of text")
+    p.set_defaults(handler=_cmd_search)
+
+
+def _cmd_search(args) -> int:
+    from .search.campaign import demo_path, search_campaign
+
+    if args.demo == bool(args.campaign):
+        raise ConfigError("search: give a campaign file (CAMPAIGN.toml) or --demo, not both or neither")
+
+    def progress(cell):
+        name, horizon, n, found = cell
+        print(f"searched {name} T={horizon} n={n}: {'found' if found else 'nothing'} "
+              f"({found.evaluations} evaluations)", file=sys.stderr)
+
+    outcome = search_campaign(demo_path() if args.demo else args.campaign, claim=args.claim, method=args.method,
+                              out=args.out,
+                              progress=None if args.json or not sys.stderr.isatty() else progress)
+    if args.json:
+        print(json.dumps(outcome.as_dict(), indent=2))
+    else:
+        print(outcome.describe())
+    return EXIT_VIOLATION if outcome.found else EXIT_PASS
+
+
+def _add_replay(sub):
+    p = sub.add_parser("replay", help="rerun a saved counterexample; exit 1 if the learner still breaks the claim")
+    p.add_argument("file", metavar="FILE", help="a counterexample .npz written by `boundbreaker search`")
+    p.add_argument("--learner", help="registry name or module:Class (default: the learner named in the file)")
+    p.add_argument("--learner-param", action="append", metavar="KEY=VALUE", help="learner parameter (repeatable)")
+    p.add_argument("--replicas", type=int, help="replicas (default: as recorded)")
+    p.add_argument("--seed", type=int, help="seed (default: the recorded one, which reproduces the file exactly)")
+    p.add_argument("--json", action="store_true", help="print JSON instead of text")
+    p.set_defaults(handler=_cmd_replay)
+
+
+def _cmd_replay(args) -> int:
+    from .learners import get as get_learner
+    from .search import Counterexample, replay
+    from .search.replay import learner_from_spec
+
+    if args.replicas is not None and args.replicas < 1:
+        raise ConfigError(f"--replicas: must be at least 1, got {args.replicas}")
+    if args.seed is not None and args.seed < 0:
+        raise ConfigError(f"--seed: must be >= 0, got {args.seed}")
+    ce = Counterexample.load(args.file)
+    if args.learner:
+        learner = _named(get_learner, args.learner, params_from(args.learner_param, "--learner-param"),
+                         "--learner", "--learner-param")
+    elif args.learner_param:
+        raise ConfigError("--learner-param: give --learner too (the parameters belong to a named learner)")
+    else:
+        learner = learner_from_spec(ce.learner)
+    result = replay(ce, learner, replicas=args.replicas, seed=args.seed)
+    if args.json:
+        print(json.dumps({"still_violates": result.still_violates, "rate": result.rate, "ci": list(result.ci),
+                          "mean": result.mean, "violations": result.violations, "replicas": result.replicas,
+                          "seed": result.seed, "confidence": result.confidence, "bound": result.bound,
+                          "claim": ce.claim.spec(), "learner": learner.spec(), "evidence": result.evidence},
+                         indent=2, default=str))
+    else:
+        print(result.describe())
+    return EXIT_VIOLATION if result.still_violates else EXIT_PASS
+
+
 def _add_certify(sub):
     p = sub.add_parser("certify", help="judge a learner's claims on a campaign's battery; writes a certificate",
                        description="Certify the claims of a campaign file (or the bundled demo). Without --out or "
@@ -190,8 +266,7 @@ def _add_certify(sub):
     p.add_argument("--out", metavar="FILE", help="write the certificate JSON to FILE (no report directory "
                                                    "unless --report is also given)")
     p.add_argument("--jobs", type=int, default=None, help="parallel jobs (-1: all cores); overrides the campaign")
-    p.add_argument("--cluster", metavar="ADDRESS",
-                   help="run chunks on a dask cluster: 'local' or a scheduler address tcp://host:8786")
+    _add_scale_options(p)
     p.set_defaults(handler=_cmd_certify)
 
 
@@ -213,15 +288,15 @@ def _cmd_certify(args) -> int:
     if args.out:  # fail on an unwritable path before the work, not after
         _writable(args.out, "--out")
     report = args.report or (None if args.out else os.path.join("reports", _slug(campaign.name)))
-    if args.cluster and args.jobs is None:
-        args.jobs = -1
     with _scaled(args):
-        cert = certify_campaign(campaign, n_jobs=args.jobs, progress=True)
+        cert = certify_campaign(campaign, n_jobs=args.jobs, progress=True, checkpoint=args.checkpoint)
     print(cert.table())
     if args.out:
         written.append(cert.save(args.out))
     if report:
-        written.extend(write_report(cert, report, n_jobs=args.jobs or 1).values())
+        # the campaign's own objects: a report never imports code named in a certificate
+        written.extend(write_report(cert, report, learner=campaign.build_learner(),
+                                    adversaries=campaign.build_adversaries(), n_jobs=args.jobs or 1).values())
     for path in written:
         print(f"wrote {path}")
     return {"pass": EXIT_PASS, "fail": EXIT_VIOLATION}.get(cert.verdict, EXIT_INCONCLUSIVE)
@@ -242,6 +317,7 @@ def _slug(name: str) -> str:
 
 COMMANDS = [_add_run, _add_list, _add_bench]
 COMMANDS.append(_add_certify)
+COMMANDS += [_add_search, _add_replay]
 
 
 def _add_report(sub):
@@ -255,6 +331,10 @@ def _add_report(sub):
     p.add_argument("--replay-limit", type=int, default=None, metavar="N",
                    help="replay at most N replicas per group (whole chunks; default 4096)")
     p.add_argument("--jobs", type=int, default=1, help="parallel jobs for the replay (-1: all cores)")
+    p.add_argument("--learner", metavar="NAME|module:Class",
+                   help="the learner that was certified (default: rebuilt from the certificate when it is a "
+                        "registered name; code named in a file is never imported)")
+    p.add_argument("--learner-param", action="append", metavar="KEY=VALUE", help="learner parameter (repeatable)")
     p.set_defaults(handler=_cmd_report)
 
 
@@ -271,8 +351,16 @@ def _cmd_report(args) -> int:
     out = args.out or os.path.dirname(os.path.abspath(args.certificate))
     if os.path.exists(out) and not os.path.isdir(out):
         raise ConfigError(f"--out {out}: is a file; give a directory")
+    learner = None
+    if args.learner:
+        from .learners import get as get_learner
+        learner = _named(get_learner, args.learner, params_from(args.learner_param, "--learner-param"),
+                         "--learner", "--learner-param")
+    elif args.learner_param:
+        raise ConfigError("--learner-param: only with --learner")
     cert = Certificate.load(args.certificate)
-    for path in write_report(cert, out, replay=not args.no_replay, limit=limit, n_jobs=args.jobs).values():
+    for path in write_report(cert, out, learner=learner, replay=not args.no_replay, limit=limit,
+                             n_jobs=args.jobs).values():
         print(f"wrote {path}")
     return EXIT_PASS
 

@@ -56,7 +56,7 @@ from pathlib import Path
 import numpy as np
 
 from . import validate
-from .claims import KINDS, METRICS, Claim, Expression
+from .claims import KINDS, METRICS, SCOPES, Claim, Expression
 from .errors import BoundbreakerError, ConfigError
 
 REQUIRED = object()
@@ -253,6 +253,7 @@ CLAIM_KEYS = {
     "delta": (lambda k, v: validate.real(k, v, low=0.0, high=1.0, low_open=True, high_open=True), 0.05),
     "kind": (lambda k, v: validate.choice(k, v, KINDS), "high_probability"),
     "source": (lambda k, v: "" if v is None else _str(k, v), None),
+    "scope": (lambda k, v: validate.choice(k, v, SCOPES), "any"),
 }
 ADVERSARY_KEYS = {"name": (_str, REQUIRED), "params": (_params, {}), "label": (_opt_str, None)}
 
@@ -410,7 +411,7 @@ class _Context:
                     bound = validate.real(f"{key}.bound", bound)
                 except ConfigError as exc:
                     raise self.wrap(exc) from None
-            kwargs = {k: entry[k] for k in ("metric", "delta", "kind", "source") if entry[k] is not None}
+            kwargs = {k: entry[k] for k in ("metric", "delta", "kind", "source", "scope") if entry[k] is not None}
             claim = Claim(bound=bound, name=entry["name"] or "", **kwargs)
             if claim.name in names:
                 raise self.error(f"{key}.name", f"{claim.name!r} is used twice; give each claim a distinct name")

@@ -5,6 +5,7 @@ are compared with what the pages print (4 significant digits: relative error at 
 """
 
 import base64
+import copy
 import io
 import json
 import re
@@ -159,19 +160,25 @@ def test_sections_failing_cells_counterexamples_and_own_claims(report):
     assert "not judged" in text
 
 
-def test_a_learner_that_cannot_be_rebuilt_still_gets_every_cell(tmp_path):
+def test_code_named_in_a_certificate_is_never_imported(tmp_path, monkeypatch):
+    """A certificate may come from anywhere: a learner named by module path is not imported (the module
+    here would leave a marker file if it were); the report still has every cell and says what to pass."""
+    marker = tmp_path / "imported"
+    (tmp_path / "planted_learner_mod.py").write_text(f"open({str(marker)!r}, 'w').close()\nclass L: pass\n")
+    monkeypatch.syspath_prepend(str(tmp_path))
     cert = small_certificate()
-    data = cert.to_dict()
-    data["learner"] = {"name": None, "class": "no_such_module_xyz:Learner", "params": {}}
+    data = copy.deepcopy(cert.to_dict())  # to_dict shares the specs of the cached certificate
+    data["learner"] = {"name": None, "class": "planted_learner_mod:L", "params": {}}
     from harness.certify import Certificate
 
-    broken = Certificate.from_dict(data)
-    paths = write_report(broken, tmp_path)
+    paths = write_report(Certificate.from_dict(data), tmp_path / "r")
+    assert not marker.exists()
     text = paths["summary"].read_text()
     assert len(markdown_cell_rows(text)) == len(cert.cells)
-    assert "Tail curves were not drawn: the learner could not be rebuilt" in text
+    assert "Tail curves were not drawn: the learner was not rebuilt" in text
+    assert "does not import code named in a file" in text and "--learner" in text
     assert "Counterexample plots were not drawn" in text
-    assert not list((tmp_path / "figures").glob("survival-*.png"))
+    assert not list((tmp_path / "r" / "figures").glob("survival-*.png"))
 
 
 def test_report_cli_rebuilds_the_report_from_a_saved_certificate(tmp_path, capsys):
@@ -182,6 +189,11 @@ def test_report_cli_rebuilds_the_report_from_a_saved_certificate(tmp_path, capsy
     assert code == 0, err
     assert "report.html" in out and (tmp_path / "r" / "report.html").exists()
     assert "without replay" in (tmp_path / "r" / "summary.md").read_text()
+    # --learner names the certified learner explicitly (here with the certificate's own parameters)
+    code = main(["report", str(path), "--out", str(tmp_path / "s"), "--learner", "hedge", "--replay-limit", "256"])
+    out, err = capsys.readouterr()
+    assert code == 0, err
+    assert "Check passed" in (tmp_path / "s" / "summary.md").read_text()
 
 
 @pytest.mark.parametrize("argv, text", [
@@ -190,6 +202,8 @@ def test_report_cli_rebuilds_the_report_from_a_saved_certificate(tmp_path, capsy
     (["report", "{c}", "--replay-limit", "0"], "--replay-limit"),
     (["report", "{c}", "--jobs", "0"], "--jobs"),
     (["report", "{c}", "--out", "{c}"], "is a file"),
+    (["report", "{c}", "--learner-param", "eta=1"], "only with --learner"),
+    (["report", "{c}", "--learner", "nope"], "--learner"),
 ])
 def test_report_cli_bad_input_exits_2_with_one_line(tmp_path, capsys, argv, text):
     (tmp_path / "bad.json").write_text("{not json")
@@ -211,3 +225,24 @@ def test_certify_report_writes_the_html_page(tmp_path, capsys):
     for name in ("certificate.json", "summary.md", "report.html"):
         assert (tmp_path / "r" / name).exists() and f"wrote {tmp_path / 'r' / name}" in out
     assert (tmp_path / "r" / "figures" / "verdict-grid.png").exists()
+
+
+def test_pairs_not_judged_are_shown_as_such(tmp_path):
+    """A claim made for oblivious adversaries only (Claim.scope) is not judged on an adaptive one: the
+    report lists the pair and the verdict grid shows a grey 'not judged' box instead of a verdict."""
+    import adversaries
+    from harness import Claim, certify
+    from harness.learners import get as get_learner
+    from harness.report import figures
+
+    claims = [Claim("switches", 3, kind="always", name="cap"),
+              Claim("regret", 50, delta=0.05, name="oblivious-only", scope="oblivious")]
+    cert = certify(get_learner("hedge"), claims, [adversaries.get("alternating"), adversaries.get("chase")],
+                   horizons=60, n_actions=2, max_replicas=256, seed=1, labels=["flapping pair", "chaser"])
+    assert len(cert.cells) == 3 and cert.not_applicable
+    text = write_report(cert, tmp_path)["summary"].read_text()
+    assert "## Not judged" in text and "claim `oblivious-only` on chaser" in text
+    assert len(markdown_cell_rows(text)) == 3
+    fig = figures.verdict_grid(cert)
+    texts = [t.get_text() for ax in fig.axes for t in ax.texts]
+    assert sum(t.startswith("not judged") for t in texts) == 1 and len(texts) == 4

@@ -1,5 +1,7 @@
 """The report's per-replica values come from exact replay of the certificate's groups."""
 
+import copy
+
 import numpy as np
 import pytest
 
@@ -43,19 +45,24 @@ def test_a_limited_replay_is_an_exact_prefix(cert):
 
 def test_a_replay_that_does_not_reproduce_the_certificate_says_so(cert):
     """The check has power: the same certificate with Hedge's eta changed replays to other values."""
-    data = cert.to_dict()
+    data = copy.deepcopy(cert.to_dict())  # to_dict shares the specs of the cached certificate
     data["learner"]["params"] = {"eta": 2.0}
     dists = replay_distributions(Certificate.from_dict(data))
     assert dists.problems and not dists.consistent
     assert any("replays to" in p or "violations" in p for p in dists.problems)
 
 
-def test_an_unbuildable_adversary_skips_the_replay_with_a_reason(cert):
-    data = cert.to_dict()
-    for c in data["cells"]:
-        c["adversary"] = {"name": None, "class": "no_such_module_xyz:Adv", "params": {}}
+def test_an_adversary_named_by_module_path_is_not_rebuilt_and_its_groups_are_left_out(cert):
+    data = copy.deepcopy(cert.to_dict())  # to_dict shares the specs of the cached certificate
+    data["adversaries"][1] = {"name": None, "class": "no_such_module_xyz:Adv", "params": {}, "label": "x"}
     dists = replay_distributions(Certificate.from_dict(data))
-    assert dists.skipped and "could not be rebuilt" in dists.skipped and not dists.groups
+    assert {key[0] for key in dists.groups} == {0, 2} and not dists.problems
+    assert any("not a registered adversary" in note for note in dists.notes)
+    # given by the caller, it is used
+    given = replay_distributions(Certificate.from_dict(data), get_learner("hedge"),
+                                 adversaries=[adversaries.get("alternating"), adversaries.get("bernoulli", p=0.5),
+                                              adversaries.get("chase")])
+    assert {key[0] for key in given.groups} == {0, 1, 2} and not given.problems
 
 
 @pytest.mark.parametrize("adversary", ["bernoulli", "shared", "chase", "alternating"])
@@ -81,5 +88,5 @@ def test_trace_cell_replays_a_recorded_violation():
     cert = certify(get_learner("hedge"), claim, [adversaries.get("bernoulli", p=0.5)], horizons=80, n_actions=2,
                    max_replicas=256, seed=3)
     cell = cert.cells[0]
-    trace = trace_cell(cell, get_learner("hedge"))
+    trace = trace_cell(cell, get_learner("hedge"), adversaries.get("bernoulli", p=0.5))
     assert trace.switches == cell.replay[0]["value"] > 3

@@ -21,27 +21,29 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from ..errors import BoundbreakerError, ConfigError
+from ..errors import ConfigError
 from . import figures
 from .certificate import build
 from .figures import (action_traces, counterexample_figure, leader_gaps, loss_strip, png_bytes, survival_plot,
                       verdict_grid)
 from .html import render as render_html
 from .markdown import render as render_markdown
-from .replay import DEFAULT_LIMIT, Distributions, replay_distributions, trace_replica
+from .replay import DEFAULT_LIMIT, replay_distributions, subjects, trace_replica
 
 FIGURE_DIR = "figures"
 _OURS = ("verdict-grid", "survival-", "counterexample-")
 
 
-def write_report(cert, directory, *, learner=None, replay: bool = True, limit: int = DEFAULT_LIMIT,
-                 n_jobs: int = 1) -> dict:
+def write_report(cert, directory, *, learner=None, adversaries=None, replay: bool = True,
+                 limit: int = DEFAULT_LIMIT, n_jobs: int = 1) -> dict:
     """Write the report of ``cert`` into ``directory`` (created if needed); returns the paths written.
 
-    ``learner`` defaults to the one rebuilt from the certificate's spec (a
-    ``module:Class`` learner must be importable); without it the report
-    still has every cell, and says why the tails and counterexamples are
-    missing.
+    ``learner`` and ``adversaries`` (a list in battery order) are the objects
+    that were certified; without them they are rebuilt from the
+    certificate's specs when those are registered names (a certificate may
+    come from anywhere: code named in it is never imported). What cannot be
+    had leaves the tail curves or counterexamples out, with the reason;
+    every cell is always there.
     """
     directory = Path(directory)
     try:
@@ -50,21 +52,10 @@ def write_report(cert, directory, *, learner=None, replay: bool = True, limit: i
     except OSError as exc:
         raise ConfigError(f"--report {directory}: cannot create the directory ({exc.strerror}); "
                           f"choose a writable path") from None
-    learner_problem = None
-    if learner is None:
-        from ..certify import build_from_spec
-        try:
-            learner = build_from_spec(cert.learner, "learner")
-        except BoundbreakerError as exc:
-            learner_problem = f"the learner could not be rebuilt from its spec ({exc})"
-    if not replay:
-        dists = None
-    elif learner is None:
-        dists = Distributions({}, "", [], limit, skipped=learner_problem)
-    else:
-        dists = replay_distributions(cert, learner, limit=limit, n_jobs=n_jobs)
+    subs = subjects(cert, learner, adversaries)
+    dists = replay_distributions(cert, subs, limit=limit, n_jobs=n_jobs) if replay else None
     paths = {"certificate": cert.save(directory / "certificate.json")}
-    doc = build(cert, dists, learner, learner_problem, certificate_name="certificate.json")
+    doc = build(cert, dists, subs, certificate_name="certificate.json")
     for old in (directory / FIGURE_DIR).glob("*.png"):
         if old.name.startswith(_OURS):  # stale figures of an earlier report in the same place
             old.unlink()

@@ -7,11 +7,11 @@ from pathlib import Path
 
 import numpy as np
 
-from ..certify import adversary_label, build_from_spec
+from ..certify import adversary_label
 from ..errors import BoundbreakerError
 from . import figures
 from .document import Bullets, Callout, Code, Document, Heading, Image, Paragraph, Table
-from .replay import Distributions, trace_cell
+from .replay import Distributions, Subjects, trace_cell
 
 MAX_TRACE_ENTRIES = 5_000_000   # T * n of a counterexample sequence held in memory for its plot
 TRACE_REPLICAS = 4              # fresh replays drawn under the recorded one
@@ -37,8 +37,7 @@ def sequence_text(cell) -> str:
     return "one sequence shared by all replicas" if cell.shared_sequence else "one sequence per replica"
 
 
-def build(cert, dists: Distributions | None, learner=None, learner_problem: str | None = None,
-          certificate_name: str = "certificate.json") -> Document:
+def build(cert, dists: Distributions | None, subs: Subjects, certificate_name: str = "certificate.json") -> Document:
     name = cert.campaign.get("name") or "certification"
     counts = cert.counts
     doc = Document(title=f"{name}: {cert.verdict}", verdict=cert.verdict)
@@ -51,8 +50,10 @@ def build(cert, dists: Distributions | None, learner=None, learner_problem: str 
                     f"{counts['fail']} fail, {counts['inconclusive']} inconclusive).", cert.verdict))
     doc.add(Bullets((
         f"learner: `{adversary_label(cert.learner)}`",
-        f"cells: {len(cert.cells)} = {len(cert.adversaries)} adversaries x {len(cert.horizons)} horizons x "
-        f"{len(cert.n_actions)} action counts x {len(cert.claims)} claims",
+        f"cells: {len(cert.cells)} ({len(cert.adversaries)} adversaries, {len(cert.horizons)} horizons, "
+        f"{len(cert.n_actions)} action counts, {len(cert.claims)} claims"
+        + (f"; {len(cert.not_applicable)} (adversary, claim) pairs not judged)" if getattr(cert, "not_applicable", ())
+           else ")"),
         f"confidence: {cert.confidence:g} family-wise ({cert.multiplicity}: {cert.cell_confidence:.6g} per cell)",
         f"seed: {cert.seed}; max replicas per cell: {cert.max_replicas}; chunk: {cert.chunk}; switching cost: "
         f"{cert.switching_cost:g}",
@@ -67,8 +68,9 @@ def build(cert, dists: Distributions | None, learner=None, learner_problem: str 
     _cells(doc, cert)
     _failures(doc, cert)
     _tails(doc, cert, dists)
-    _counterexamples(doc, cert, learner, learner_problem)
-    _own_claims(doc, cert, learner, learner_problem)
+    _not_judged(doc, cert)
+    _counterexamples(doc, cert, subs)
+    _own_claims(doc, cert, subs.learner)
     _method(doc, cert)
     _replay(doc, cert, certificate_name)
     return doc
@@ -159,9 +161,12 @@ def _tails(doc, cert, dists):
                           "(`--no-replay`). The certificate stores summaries per cell, not every replica."))
         return
     if dists.skipped:
-        doc.add(Callout(f"Tail curves were not drawn: {dists.skipped}.", "warning"))
+        doc.add(Callout(f"Tail curves were not drawn: {dists.skipped}. Pass the objects that were certified "
+                        "(`boundbreaker report --learner`; `learner=`, `adversaries=` in Python).", "warning"))
         return
     doc.add(Paragraph(dists.method + _limit_text(cert, dists)))
+    for note in dists.notes:
+        doc.add(Callout(note[:1].upper() + note[1:] + ".", "warning"))
     if dists.problems:
         doc.add(Callout("The replay does not reproduce the certificate exactly, so these curves may not be the "
                         "replicas the verdicts rest on: " + "; ".join(dists.problems[:6])
@@ -199,7 +204,17 @@ def _limit_text(cert, dists) -> str:
             f"({len(cut)} of {len(dists.groups)} groups; still exactly the first replicas certification played).")
 
 
-def _counterexamples(doc, cert, learner, learner_problem):
+def _not_judged(doc, cert):
+    rows = getattr(cert, "not_applicable", ())
+    if not rows:
+        return
+    doc.add(Heading("Not judged", anchor="not-judged"))
+    doc.add(Paragraph("These claims are made for oblivious adversaries only, so they were not judged on these "
+                      "adaptive adversaries (no cell, no verdict):"))
+    doc.add(Bullets(tuple(f"claim `{r['claim_name']}` on {r['adversary_label']}: {r['reason']}" for r in rows)))
+
+
+def _counterexamples(doc, cert, subs):
     picked, seen = [], set()
     for c in cert.failures():
         if c.claim_name not in seen and c.replay and c.kind != "expectation":
@@ -208,8 +223,10 @@ def _counterexamples(doc, cert, learner, learner_problem):
     if not picked:
         return
     doc.add(Heading("Counterexamples", anchor="counterexamples"))
+    learner = subs.learner
     if learner is None:
-        doc.add(Callout(f"Counterexample plots were not drawn: {learner_problem}.", "warning"))
+        doc.add(Callout(f"Counterexample plots were not drawn: {subs.learner_problem}. Pass the learner "
+                        "(`boundbreaker report --learner`, or `learner=` in Python).", "warning"))
         return
     doc.add(Paragraph("For each failing claim, the first recorded violating replica is replayed exactly (its loss "
                       "sequence and its actions are recorded as it plays). Under it, the learner plays that same "
@@ -220,8 +237,12 @@ def _counterexamples(doc, cert, learner, learner_problem):
             doc.add(Paragraph(f"cell {c.index}: T x n = {c.horizon * c.n_actions} is too large to plot here; "
                               f"replay it with `{c.replay_hint()}`."))
             continue
+        adversary = subs.adversaries.get(c.adversary_index)
+        if adversary is None:
+            doc.add(Callout(f"cell {c.index}: {subs.adversary_problems[c.adversary_index]}; no plot.", "warning"))
+            continue
         try:
-            trace = trace_cell(c, learner)
+            trace = trace_cell(c, learner, adversary)
         except BoundbreakerError as exc:
             doc.add(Callout(f"cell {c.index}: the recorded replica could not be replayed: {exc}", "warning"))
             continue
@@ -239,7 +260,7 @@ def _counterexamples(doc, cert, learner, learner_problem):
                       figures.png_bytes(fig), alt=f"counterexample for cell {c.index}"))
 
 
-def _own_claims(doc, cert, learner, learner_problem):
+def _own_claims(doc, cert, learner):
     claims = tuple(getattr(learner, "claims", ()) or ()) if learner is not None else ()
     if not claims:
         return
@@ -333,7 +354,7 @@ def _replay(doc, cert, certificate_name):
         doc.add(Code("\n".join([
             "from harness.certify import Certificate, build_from_spec, replay_replica",
             f"cert = Certificate.load({certificate_name!r})",
-            "learner = build_from_spec(cert.learner, 'learner')",
+            "learner = build_from_spec(cert.learner, 'learner')   # or the learner object you certified",
             f"cell = cert.cells[{first.index}]",
             "value = replay_replica(cell, learner)   # equals cell.replay[0]['value'] exactly",
         ]), "python"))

@@ -234,14 +234,17 @@ def verdict_grid(cert, column_width: float = 1.45, row_height: float = 0.5) -> F
     (2.6 + column_width * columns) x (0.7 + sum over claims of (0.55 +
     row_height * adversaries)) inches.
     """
-    claims = list(dict.fromkeys(c.claim_name for c in cert.cells))
-    advs = list(dict.fromkeys((c.adversary_index, c.adversary_label) for c in cert.cells))
+    claims = [spec["name"] for spec in cert.claims]
+    labels = {c.adversary_index: c.adversary_label for c in cert.cells}
+    advs = [(a, labels.get(a) or spec.get("label") or spec.get("name") or "?")
+            for a, spec in enumerate(cert.adversaries)]
     cols = sorted({(c.horizon, c.n_actions) for c in cert.cells})
     panel_h = [0.55 + row_height * len(advs) for _ in claims]
     width = 2.6 + column_width * len(cols)
     height = 0.7 + sum(panel_h)
     fig = new_figure(width, height)
     by_key = {(c.claim_name, c.adversary_index, c.horizon, c.n_actions): c for c in cert.cells}
+    skipped = {(r["claim_name"], r["adversary_label"]) for r in getattr(cert, "not_applicable", ())}
     top = 1 - 0.45 / height
     for k, claim in enumerate(claims):
         ph = panel_h[k] / height
@@ -254,6 +257,10 @@ def verdict_grid(cert, column_width: float = 1.45, row_height: float = 0.5) -> F
             for j, (T, n) in enumerate(cols):
                 cell = by_key.get((claim, a, T, n))
                 if cell is None:
+                    if (claim, label) in skipped:
+                        ax.add_patch(Rectangle((j, i), 1, 1, facecolor="#eceff1", edgecolor="white", linewidth=2))
+                        ax.text(j + 0.5, i + 0.5, "not judged\n(oblivious-only claim)", ha="center", va="center",
+                                fontsize=6.5, color="#78909c")
                     continue
                 ax.add_patch(Rectangle((j, i), 1, 1, facecolor=VERDICT_FILLS[cell.verdict], edgecolor="white",
                                        linewidth=2))
@@ -267,8 +274,9 @@ def verdict_grid(cert, column_width: float = 1.45, row_height: float = 0.5) -> F
         ax.tick_params(length=0)
         for side in ax.spines.values():
             side.set_visible(False)
-        first = next(c for c in cert.cells if c.claim_name == claim)
-        fig.text(0.1 / width, bottom + ph - 0.08 / height, f"claim {_short(claim, 60)}: {claim_kind(first)}",
+        first = next((c for c in cert.cells if c.claim_name == claim), None)
+        fig.text(0.1 / width, bottom + ph - 0.08 / height,
+                 f"claim {_short(claim, 60)}" + (f": {claim_kind(first)}" if first else ": not judged anywhere"),
                  fontsize=8.5, fontweight="bold", va="top")
         top = bottom
     handles = [Patch(facecolor=VERDICT_FILLS[v], edgecolor=VERDICT_COLOURS[v], label=v) for v in VERDICT_FILLS]

@@ -13,6 +13,13 @@ played more than ``limit`` replicas is replayed on its first
 ``floor(limit / chunk)`` whole chunks, which are still exactly the first
 replicas the certification played (chunk k depends only on the seed and k).
 
+The learner and adversaries are the caller's objects when given (``certify
+--report`` passes the ones it certified); otherwise they are rebuilt from
+the certificate's specs, registered names only: a certificate may come from
+anywhere, and boundbreaker never imports code named in a file (the rule of
+:mod:`harness.search.replay`). Whatever cannot be had is reported, with what
+to pass instead.
+
 The replay is checked against the certificate: for every cell whose
 verdict rests on replayed replicas, the count of values above the bound must
 equal the recorded ``violations``, and every recorded replica that was
@@ -31,7 +38,6 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..certify import build_from_spec
 from ..errors import BoundbreakerError, ConfigError
 from ..protocol import Adversary, Learner
 from ..runner import play_chunk, run, versions
@@ -72,9 +78,10 @@ class Distributions:
 
     groups: dict
     method: str
-    problems: list
+    problems: list               # where the replay does not reproduce the certificate
     limit: int
     skipped: str | None = None   # why nothing was replayed
+    notes: list = field(default_factory=list)  # groups left out, versions that differ
 
     def group(self, cell) -> GroupValues | None:
         return self.groups.get((cell.adversary_index, cell.horizon, cell.n_actions))
@@ -90,47 +97,94 @@ METHOD = ("Per-replica values were obtained by exact replay: each (adversary, T,
           "and recorded replica values).")
 
 
-def replay_distributions(cert, learner=None, limit: int = DEFAULT_LIMIT, n_jobs: int = 1) -> Distributions:
+@dataclass
+class Subjects:
+    """The learner and the adversaries (by position in the battery) a report replays, or why not."""
+
+    learner: object
+    adversaries: dict
+    learner_problem: str | None = None
+    adversary_problems: dict = field(default_factory=dict)
+
+
+def subjects(cert, learner=None, adversaries=None) -> Subjects:
+    """The caller's learner and adversaries (a list in battery order), else rebuilt from registered names."""
+    from ..learners import REGISTRY as LEARNERS, get
+    from ..search.replay import _check_file_spec
+    import adversaries as library
+
+    problem = None
+    if learner is None:
+        try:
+            _check_file_spec(cert.learner, LEARNERS, "learner", "boundbreaker report --learner NAME|module:Class")
+            learner = get(cert.learner["name"], **(cert.learner.get("params") or {}))
+        except BoundbreakerError as exc:
+            problem = f"the learner was not rebuilt ({exc})"
+    given = {}
+    if adversaries is not None:
+        adversaries = list(adversaries)
+        if len(adversaries) != len(cert.adversaries):
+            raise ConfigError(f"adversaries: give one per adversary of the certificate ({len(cert.adversaries)}), "
+                              f"got {len(adversaries)}")
+        given = dict(enumerate(adversaries))
+    rebuilt, problems = {}, {}
+    for a, spec in enumerate(cert.adversaries):
+        if a in given:
+            rebuilt[a] = given[a]
+            continue
+        spec = {k: spec[k] for k in ("name", "class", "params") if k in spec}
+        try:
+            _check_file_spec(spec, library.REGISTRY, "adversary", "pass adversaries= to harness.report.write_report")
+            rebuilt[a] = library.from_spec(spec)
+        except BoundbreakerError as exc:
+            problems[a] = f"adversary {cert.adversaries[a].get('label', a)!r} was not rebuilt ({exc})"
+    return Subjects(learner, rebuilt, problem, problems)
+
+
+def replay_distributions(cert, learner=None, limit: int = DEFAULT_LIMIT, n_jobs: int = 1,
+                         adversaries=None) -> Distributions:
     """Replay every group of ``cert`` (see the module docstring).
 
-    ``learner`` defaults to the one rebuilt from the certificate's spec;
-    adversaries are rebuilt from the cells' specs. If either cannot be
-    rebuilt, nothing is replayed and ``skipped`` says why.
+    ``learner`` and ``adversaries`` (a list in battery order) default to the
+    ones rebuilt from the certificate's registered names (:func:`subjects`);
+    a :class:`Subjects` may be passed as ``learner``. Groups whose adversary
+    cannot be had are left out and listed in ``problems``; without a
+    learner nothing is replayed and ``skipped`` says why.
     """
     if isinstance(limit, bool) or not isinstance(limit, int) or limit < 1:
         raise ConfigError(f"limit: must be a positive integer number of replicas, got {limit!r}")
-    if learner is None:
-        try:
-            learner = build_from_spec(cert.learner, "learner")
-        except BoundbreakerError as exc:
-            return Distributions({}, METHOD, [], limit, skipped=f"the learner could not be rebuilt from its spec: {exc}")
-    problems = []
+    subs = learner if isinstance(learner, Subjects) else subjects(cert, learner, adversaries)
+    if subs.learner is None:
+        return Distributions({}, METHOD, [], limit, skipped=subs.learner_problem)
+    problems, notes = [], [subs.adversary_problems[a] + "; its groups are left out"
+                           for a in sorted(subs.adversary_problems)]
     now = versions()
     if now != cert.versions:
         changed = sorted(k for k in set(now) | set(cert.versions) if now.get(k) != cert.versions.get(k))
-        problems.append("library versions differ from the certificate's (" + ", ".join(
+        notes.append("library versions differ from the certificate's (" + ", ".join(
             f"{k} {cert.versions.get(k)} -> {now.get(k)}" for k in changed) + "); the replay may not reproduce it")
     groups = {}
     first_cells = {}
     for c in cert.cells:
         first_cells.setdefault((c.adversary_index, c.horizon, c.n_actions), c)
     for key, cell in first_cells.items():
-        try:
-            adversary = build_from_spec(cell.adversary, "adversary")
-        except BoundbreakerError as exc:
-            return Distributions({}, METHOD, problems, limit,
-                                 skipped=f"adversary {cell.adversary_label!r} could not be rebuilt: {exc}")
+        adversary = subs.adversaries.get(cell.adversary_index)
+        if adversary is None:
+            continue
         replicas = cell.replicas_run
         if replicas > limit:
             replicas = max(cell.chunk, (limit // cell.chunk) * cell.chunk)
-        result = run(learner, adversary, cell.horizon, cell.n_actions, replicas=replicas, seed=cell.seed,
+        result = run(subs.learner, adversary, cell.horizon, cell.n_actions, replicas=replicas, seed=cell.seed,
                      chunk=cell.chunk, n_jobs=n_jobs)
         g = GroupValues(cell.adversary_index, cell.adversary_label, cell.horizon, cell.n_actions, cell.seed,
                         result.regret, result.switches, cert.switching_cost, cell.replicas_run)
         _check(cert, g)
         problems.extend(g.problems)
         groups[key] = g
-    return Distributions(groups, METHOD, problems, limit)
+    if not groups:
+        return Distributions({}, METHOD, problems, limit, notes=notes, skipped="no adversary could be rebuilt: "
+                             + "; ".join(subs.adversary_problems.values()))
+    return Distributions(groups, METHOD, problems, limit, notes=notes)
 
 
 def _check(cert, g: GroupValues):
@@ -245,15 +299,14 @@ def trace_replica(learner, adversary, horizon: int, n_actions: int, seed: int, i
     return ReplicaTrace(losses=losses, actions=actions, regret=float(regret[row]), switches=int(switches[row]))
 
 
-def trace_cell(cell, learner, which: int = 0) -> ReplicaTrace:
+def trace_cell(cell, learner, adversary, which: int = 0) -> ReplicaTrace:
     """The recorded replica ``which`` of a certificate cell, traced."""
     if not cell.replay:
         raise ConfigError(f"{cell.where}: no replica was recorded for this cell")
     r = cell.replay[which]
-    adversary = build_from_spec(cell.adversary, "adversary")
     return trace_replica(learner, adversary, cell.horizon, cell.n_actions, cell.seed, r["chunk_index"],
                          r["chunk_replicas"], r["row"])
 
 
-__all__ = ["GroupValues", "Distributions", "replay_distributions", "ReplicaTrace", "trace_replica", "trace_cell",
+__all__ = ["GroupValues", "Distributions", "Subjects", "subjects", "replay_distributions", "ReplicaTrace", "trace_replica", "trace_cell",
            "DEFAULT_LIMIT", "METHOD"]
