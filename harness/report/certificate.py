@@ -190,9 +190,10 @@ def _tails(doc, cert, dists):
         fig = figures.survival_grid(panels, rows, cols, metric, confidence=0.95)
         doc.add(Image(f"survival-{metric.replace('_', '-')}",
                       f"P[{metric} > x] (log scale) of every replayed replica in each (adversary, T, n) group, with "
-                      f"a 95% DKW band (Massart 1990). A dashed line is a claim's bound (dash-dot for expectation "
-                      f"claims, triangle = sample mean), coloured by its verdict; a dotted line is its delta: a "
-                      f"high-probability claim holds when the curve passes below the dot at (bound, delta).",
+                      f"a 95% DKW band (Massart 1990). Vertical lines mark each claim's bound (line style per claim, "
+                      f"see the legend), coloured by its verdict; a dotted horizontal line marks a high-probability "
+                      f"claim's delta, which holds when the curve passes below the marker at (bound, delta); a "
+                      f"triangle on the top edge marks the sample mean, for expectation claims.",
                       figures.png_bytes(fig), alt=f"survival curves of {metric}"))
 
 
