@@ -21,14 +21,9 @@ from . import oblivious, lower_bounds, heavy_tail, adaptive, compose  # noqa: E4
 from .compose import from_spec  # noqa: E402
 
 
-def get(name: str, **params):
-    """An adversary by registry name or ``module:Class``, built with ``params``."""
-    return REGISTRY.get(name, **params)
-
-
-def names() -> list[str]:
-    return REGISTRY.names()
-
-
-def describe():
-    return REGISTRY.describe()
+# Package-level registry calls: get(name, **params) builds one (registry name
+# or module:Class), names() lists them, describe() gives (name, description,
+# parameters) rows.
+get = REGISTRY.get
+names = REGISTRY.names
+describe = REGISTRY.describe

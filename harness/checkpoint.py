@@ -32,10 +32,16 @@ FORMAT = "boundbreaker-checkpoint/1"
 
 
 class ChunkStore:
-    def __init__(self, directory, identity: dict, chunk_sizes: dict[int, int]):
+    """Finished chunks of one run (or one certification) under ``directory``.
+
+    ``identity`` is everything chunk results depend on; a directory whose
+    manifest records another identity is refused. Chunks are stored by name
+    (``chunk-000012`` for ``run``; certification adds its group to the name).
+    """
+
+    def __init__(self, directory, identity: dict):
         self.dir = Path(directory)
         self.identity = {"format": FORMAT, **identity}
-        self.sizes = chunk_sizes
         if self.dir.exists() and not self.dir.is_dir():
             raise ConfigError(f"checkpoint: {self.dir} exists and is not a directory; give a directory path")
         self.dir.mkdir(parents=True, exist_ok=True)
@@ -54,34 +60,31 @@ class ChunkStore:
         else:
             _atomic_write(manifest, json.dumps(self.identity, indent=2, sort_keys=True).encode())
 
-    def _path(self, index: int) -> Path:
-        return self.dir / f"chunk-{index:06d}.npz"
+    def _path(self, name: str) -> Path:
+        return self.dir / f"{name}.npz"
 
-    def finished(self) -> dict[int, tuple[np.ndarray, np.ndarray]]:
-        """The chunks already on disk, validated."""
-        out = {}
-        for index, size in self.sizes.items():
-            path = self._path(index)
-            if not path.exists():
-                continue
-            try:
-                with np.load(path, allow_pickle=False) as data:
-                    regret, switches = data["regret"], data["switches"]
-            except Exception as exc:
-                raise ConfigError(f"checkpoint: {path} is corrupt ({type(exc).__name__}); delete that file "
-                                  f"and rerun to recompute the chunk") from None
-            if (regret.shape != (size,) or switches.shape != (size,) or regret.dtype != np.float64
-                    or switches.dtype != np.int64):
-                raise ConfigError(f"checkpoint: {path} does not hold {size} replicas of results; delete it and "
-                                  f"rerun to recompute the chunk")
-            out[index] = (regret, switches)
-        return out
+    def get(self, name: str, size: int):
+        """(regret, switches) of a finished chunk of ``size`` replicas, or None; validated."""
+        path = self._path(name)
+        if not path.exists():
+            return None
+        try:
+            with np.load(path, allow_pickle=False) as data:
+                regret, switches = data["regret"], data["switches"]
+        except Exception as exc:
+            raise ConfigError(f"checkpoint: {path} is corrupt ({type(exc).__name__}); delete that file "
+                              f"and rerun to recompute the chunk") from None
+        if (regret.shape != (size,) or switches.shape != (size,) or regret.dtype != np.float64
+                or switches.dtype != np.int64):
+            raise ConfigError(f"checkpoint: {path} does not hold {size} replicas of results; delete it and "
+                              f"rerun to recompute the chunk")
+        return regret, switches
 
-    def save(self, index: int, regret: np.ndarray, switches: np.ndarray) -> None:
+    def save(self, name: str, regret: np.ndarray, switches: np.ndarray) -> None:
         buffer = io.BytesIO()
         np.savez(buffer, regret=np.asarray(regret, dtype=np.float64),
                  switches=np.asarray(switches, dtype=np.int64))
-        _atomic_write(self._path(index), buffer.getvalue())
+        _atomic_write(self._path(name), buffer.getvalue())
 
 
 def _atomic_write(path: Path, data: bytes) -> None:

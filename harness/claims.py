@@ -7,6 +7,12 @@ A :class:`Claim` bounds one metric of a run (``regret``, ``switches`` or
 - ``"expectation"``: E[metric] <= bound (``delta`` unused);
 - ``"always"``: metric <= bound on every replica (a hard cap).
 
+``scope`` says which adversaries the claim is made against: ``"any"``
+(default) or ``"oblivious"`` — many low-switching analyses (lazy
+perturbations, Shrinking Dartboard) hold only for sequences fixed in
+advance, and certification does not judge such a claim on adaptive
+adversaries (it lists those cells as not applicable).
+
 ``bound`` is a number, a function ``bound(horizon, n_actions, delta)``, or a
 small arithmetic expression in ``T``, ``n`` and ``delta`` such as
 ``"sqrt(T * ln(n) / 2) + sqrt(T * ln(1 / delta) / 2)"`` (see :func:`expression`).
@@ -27,6 +33,7 @@ from .errors import ConfigError
 
 METRICS = ("regret", "switches", "cost_regret")
 KINDS = ("high_probability", "expectation", "always")
+SCOPES = ("any", "oblivious")
 
 Bound = Union[float, Callable[[int, int, float], float]]
 
@@ -132,10 +139,12 @@ class Claim:
     kind: str = "high_probability"
     name: str = ""
     source: str = ""  # where the bound is published (author, year, theorem)
+    scope: str = "any"  # "any" or "oblivious": the adversaries the claim is made against
 
     def __post_init__(self):
         validate.choice("claim.metric", self.metric, METRICS)
         validate.choice("claim.kind", self.kind, KINDS)
+        validate.choice("claim.scope", self.scope, SCOPES)
         if isinstance(self.bound, str):
             object.__setattr__(self, "bound", Expression(self.bound, "claim.bound"))
         elif not callable(self.bound):
@@ -158,6 +167,10 @@ class Claim:
             raise ConfigError(f"claim {self.name!r}: bound is NaN at T={horizon}, n={n_actions}")
         return value
 
+    def applies_to(self, adversary) -> bool:
+        """False for an oblivious-only claim facing an adaptive adversary."""
+        return self.scope == "any" or not getattr(adversary, "adaptive", False)
+
     def violations(self, values: np.ndarray, horizon: int, n_actions: int) -> np.ndarray:
         """Boolean per replica: metric > bound (meaningful for the per-replica kinds)."""
         return np.asarray(values) > self.bound_at(horizon, n_actions)
@@ -168,4 +181,22 @@ class Claim:
             bound = getattr(bound, "expression", None) or \
                 f"{getattr(bound, '__module__', '?')}:{getattr(bound, '__qualname__', repr(bound))}"
         return {"metric": self.metric, "bound": bound, "delta": self.delta, "kind": self.kind,
-                "name": self.name, "source": self.source}
+                "name": self.name, "source": self.source, "scope": self.scope}
+
+
+def metric_range(metric: str, horizon: int, switching_cost: float = 0.0) -> tuple[float, float]:
+    """The values a metric can take over ``horizon`` rounds, whatever the learner and losses.
+
+    With losses in [0, 1], the learner's total and every action's total lie in
+    [0, T], so regret = played - min_i total(i) lies in [-T, T]; switches
+    count rounds t >= 1 with a new action, so lie in [0, T - 1]; cost_regret
+    adds switching_cost * switches. Expectation claims are judged with these
+    known ranges and nothing else (common practice).
+    """
+    validate.choice("metric", metric, METRICS)
+    T = float(horizon)
+    if metric == "regret":
+        return -T, T
+    if metric == "switches":
+        return 0.0, max(T - 1.0, 0.0)
+    return -T, T + float(switching_cost) * max(T - 1.0, 0.0)

@@ -18,6 +18,7 @@ from .errors import BoundbreakerError, ConfigError
 class Registry:
     def __init__(self, kind: str):
         self.kind = kind  # "learner" or "adversary": used in messages
+        self.plural = "adversaries" if kind == "adversary" else f"{kind}s"
         self._entries: dict[str, tuple[type, str]] = {}
 
     def register(self, name: str, description: str):
@@ -54,7 +55,7 @@ class Registry:
             hint = f"did you mean {close[0]!r}? " if close else ""
             raise ConfigError(
                 f"{self.kind}: unknown name {name!r}; {hint}"
-                f"`boundbreaker list {self.kind}s` shows the {len(self._entries)} known ones") from None
+                f"`boundbreaker list {self.plural}` shows the {len(self._entries)} known ones") from None
 
     def get(self, name: str, **params):
         """Build a registered (or ``module:Class``) object with parameters."""

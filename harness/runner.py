@@ -20,6 +20,7 @@ metric is a running total, so memory does not grow with the horizon.
 from __future__ import annotations
 
 import copy
+import functools
 import math
 import sys
 import time
@@ -111,18 +112,18 @@ def run(learner, adversary, horizon, n_actions, replicas=1000, seed=0, n_jobs=1,
         identity = {"learner": learner.spec(), "adversary": adversary.spec(), "horizon": horizon,
                     "n_actions": n_actions, "replicas": replicas, "seed": seed, "chunk": chunk,
                     "versions": versions()}
-        store = ChunkStore(checkpoint, identity, {k: hi - lo for k, (lo, hi) in bounds.items()})
-        resumed = store.finished()
+        store = ChunkStore(checkpoint, identity)
     todo = []
     for k, (lo, hi) in bounds.items():
-        if k in resumed:
-            regret[lo:hi], switches[lo:hi] = resumed[k]
+        saved = store.get(f"chunk-{k:06d}", hi - lo) if store else None
+        if saved is not None:
+            regret[lo:hi], switches[lo:hi] = saved
+            resumed[k] = True
         else:
-            todo.append((k, hi - lo))
-    plan = dict(horizon=horizon, n_actions=n_actions, seed=seed)
-    for k, reg, sw in _dispatch(learner, adversary, plan, todo, n_jobs, progress):
+            todo.append((k, (learner, adversary, horizon, n_actions, seed, k, hi - lo)))
+    for k, reg, sw in dispatch(todo, n_jobs, progress):
         if store is not None:
-            store.save(k, reg, sw)  # at once: an interruption loses no finished chunk
+            store.save(f"chunk-{k:06d}", reg, sw)  # at once: an interruption loses no finished chunk
         lo, hi = bounds[k]
         regret[lo:hi] = reg
         switches[lo:hi] = sw
@@ -248,22 +249,21 @@ def _play_adaptive(learner, adversary, horizon, n_actions, replicas, name, adv_n
 # -- dispatch -----------------------------------------------------------------
 
 
-def _indexed_chunk(learner, adversary, horizon, n_actions, seed, index, replicas):
-    return (index, *play_chunk(learner, adversary, horizon, n_actions, seed, index, replicas))
+def _keyed_chunk(key, args):
+    return (key, *play_chunk(*args))
 
 
-def _dispatch(learner, adversary, plan, jobs, n_jobs, progress):
-    """Yield (index, regret, switches) for each (index, size) job as it finishes."""
-    calls = [(learner, adversary, plan["horizon"], plan["n_actions"], plan["seed"], k, size)
-             for k, size in jobs]
+def dispatch(calls, n_jobs, progress=False):
+    """Play chunks and yield ``(key, regret, switches)`` for each ``(key, play_chunk args)``
+    as it finishes (in any order when parallel). ``n_jobs == 1`` stays in-process."""
     if not calls:
         return
     if n_jobs == 1 or len(calls) == 1:
-        results = (_indexed_chunk(*c) for c in calls)
+        results = (_keyed_chunk(key, args) for key, args in calls)
     else:
         from joblib import Parallel, delayed
         results = Parallel(n_jobs=n_jobs, return_as="generator_unordered")(
-            delayed(_indexed_chunk)(*c) for c in calls)
+            delayed(_keyed_chunk)(key, args) for key, args in calls)
     bar = _Progress(len(calls)) if progress and sys.stderr.isatty() else None
     for item in results:
         if bar:
@@ -340,15 +340,22 @@ def _name(obj) -> str:
     return repr(spec_name) if spec_name else type(obj).__name__
 
 
-def versions() -> dict:
-    """Versions of Python and the packages results depend on."""
+@functools.lru_cache(maxsize=1)
+def _versions() -> tuple:
     import platform
     from importlib import metadata
 
-    out = {"python": platform.python_version()}
+    out = [("python", platform.python_version())]
     for pkg in ("boundbreaker", "numpy", "scipy", "joblib", "numba"):
         try:
-            out[pkg] = metadata.version(pkg)
+            out.append((pkg, metadata.version(pkg)))
         except metadata.PackageNotFoundError:
-            out[pkg] = None
-    return out
+            out.append((pkg, None))
+    return tuple(out)
+
+
+def versions() -> dict:
+    """Versions of Python and the packages results depend on (looked up once per process:
+    the lookup costs milliseconds, and searches call run() thousands of times)."""
+    return dict(_versions())
+

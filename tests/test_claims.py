@@ -49,3 +49,27 @@ def test_claim_validates_its_fields():
     c = Claim(metric="switches", bound="2 * ln(T)", kind="always")
     assert c.name == "switches always" and c.spec()["bound"] == "2 * ln(T)"
     assert c.violations([1, 5, 9], horizon=math.e ** 2, n_actions=2).tolist() == [False, True, True]
+
+
+def test_oblivious_only_claims_are_not_judged_on_adaptive_adversaries(tmp_path):
+    """A claim with scope="oblivious" (lazy perturbation analyses hold for sequences fixed in
+    advance) is listed as not judged on an adaptive adversary, never failed on it."""
+    import adversaries
+    from harness.certify import Certificate, certify
+    from harness.learners import get as get_learner
+
+    claim = Claim(metric="switches", bound=0.0, kind="always", name="never switches", scope="oblivious")
+    everywhere = Claim(metric="switches", bound=0.0, kind="always", name="never switches (any)")
+    cert = certify(get_learner("ftl"), [claim, everywhere], [adversaries.get("alternating"), adversaries.get("chase")],
+                   horizons=20, n_actions=2, max_replicas=256, seed=1)
+    judged = {(c.adversary_label, c.claim_name): c.verdict for c in cert.cells}
+    assert judged == {("alternating()", "never switches"): "fail", ("alternating()", "never switches (any)"): "fail",
+                      ("chase(high=1.0, low=0.0)", "never switches (any)"): "fail"}
+    assert [r["claim_name"] for r in cert.not_applicable] == ["never switches"]
+    assert "not judged: claim 'never switches' on chase(high=1.0, low=0.0)" in cert.table()
+    assert "## Not judged" in cert.markdown()
+    assert Certificate.load(cert.save(tmp_path / "c.json")).not_applicable == cert.not_applicable
+    with pytest.raises(ConfigError, match="none applies"):
+        certify(get_learner("ftl"), [claim], [adversaries.get("chase")], horizons=20, n_actions=2)
+    with pytest.raises(ConfigError, match="claim.scope"):
+        Claim(metric="regret", bound=1.0, scope="sometimes")

@@ -112,3 +112,37 @@ def test_unreachable_cluster_is_a_one_line_error():
     with pytest.raises(ConfigError, match="give 'local' or a scheduler address"):
         with cluster(""):
             pass
+
+
+def test_certification_resumes_from_its_checkpoint(tmp_path, monkeypatch):
+    """An interrupted certification, rerun with the same checkpoint directory, plays only the
+    chunks it had not finished and reaches the same certificate as an uninterrupted one."""
+    from harness.certify import certify
+    from harness.claims import Claim
+
+    claims = [Claim(metric="regret", bound="sqrt(T * ln(n) / 2) + sqrt(T * ln(1 / delta) / 2)", name="hp"),
+              Claim(metric="switches", bound=30, kind="always", name="cap")]
+    battery = dict(adversaries=[adversaries.get("bernoulli", p=0.5), adversaries.get("alternating")],
+                   horizons=[200], n_actions=[2, 4], max_replicas=2000, seed=4, chunk=64)
+    clean = certify(get_learner("hedge"), claims, **battery)
+
+    calls = []
+    real = runner.play_chunk
+
+    def counting(*a):
+        if len(calls) == 7:
+            raise KeyboardInterrupt
+        calls.append(a)
+        return real(*a)
+
+    monkeypatch.setattr(runner, "play_chunk", counting)
+    with pytest.raises(KeyboardInterrupt):
+        certify(get_learner("hedge"), claims, **battery, checkpoint=tmp_path)
+    assert len(list(tmp_path.glob("group-*.npz"))) == 7
+    calls.clear()
+    monkeypatch.setattr(runner, "play_chunk", lambda *a: calls.append(a) or real(*a))
+    resumed = certify(get_learner("hedge"), claims, **battery, checkpoint=tmp_path)
+    total = len(list(tmp_path.glob("group-*.npz")))
+    assert len(calls) == total - 7
+    strip = lambda c: {k: v for k, v in c.as_dict().items()}  # noqa: E731
+    assert [strip(c) for c in resumed.cells] == [strip(c) for c in clean.cells]

@@ -30,17 +30,12 @@ from . import flawed  # noqa: E402,F401
 from .wrappers import budget_cap, epoch_restart  # noqa: E402
 
 
-def get(name: str, **params):
-    """A learner by registry name or ``module:Class``, built with ``params``."""
-    return REGISTRY.get(name, **params)
-
-
-def names() -> list[str]:
-    return REGISTRY.names()
-
-
-def describe():
-    return REGISTRY.describe()
+# Package-level registry calls: get(name, **params) builds one (registry name
+# or module:Class), names() lists them, describe() gives (name, description,
+# parameters) rows.
+get = REGISTRY.get
+names = REGISTRY.names
+describe = REGISTRY.describe
 
 
 def example(name: str):

@@ -101,7 +101,7 @@ class FlawedHotHedge(Hedge):
 
     @property
     def claims(self):
-        return tuple(Claim(metric=c.metric, bound=c.bound, delta=c.delta, kind=c.kind,
+        return tuple(Claim(metric=c.metric, bound=c.bound, delta=c.delta, kind=c.kind, scope=c.scope,
                            name=c.name + " (FALSE on purpose)",
                            source="deliberately false: Hedge's claim for the default eta, "
                                   "attached to a hot eta (harness.learners.flawed)")

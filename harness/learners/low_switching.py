@@ -113,9 +113,9 @@ class LazyFTPL(_BlockCumulative):
             regret, switches = f"{self.eps!r} * n * T + 2 / {self.eps!r}", f"{self.eps!r} * n * T"
         source = "Kalai and Vempala 2005, J. Comput. Syst. Sci. 71:291-307, Theorem 1.1(a) and FLL (from memory)"
         return (Claim(metric="regret", bound=regret, kind="expectation", source=source,
-                      name=f"lazy-ftpl: expected regret <= {regret} (oblivious)"),
+                      name=f"lazy-ftpl: expected regret <= {regret} (oblivious)", scope="oblivious"),
                 Claim(metric="switches", bound=switches, kind="expectation", source=source,
-                      name=f"lazy-ftpl: expected switches <= {switches} (oblivious)"))
+                      name=f"lazy-ftpl: expected switches <= {switches} (oblivious)", scope="oblivious"))
 
     def reset(self, n_actions, horizon, replicas, rng):
         super().reset(n_actions, horizon, replicas, rng)
@@ -211,9 +211,9 @@ class ShrinkingDartboard(_BlockCumulative):
         source = ("Geulen, Voecking and Winkler 2010 (COLT), Shrinking Dartboard; bound derived in "
                   "harness.learners.low_switching.ShrinkingDartboard from the weighted-majority analysis")
         return (Claim(metric="regret", bound=regret, kind="expectation", source=source,
-                      name="shrinking-dartboard: expected regret <= ln(n)/eta + T(ln(1/(1-eta))/eta - 1) (oblivious)"),
+                      name="shrinking-dartboard: expected regret <= ln(n)/eta + T(ln(1/(1-eta))/eta - 1) (oblivious)", scope="oblivious"),
                 Claim(metric="switches", bound=switches, kind="expectation", source=source,
-                      name="shrinking-dartboard: expected switches <= ln n + T ln(1/(1-eta)) (oblivious)"))
+                      name="shrinking-dartboard: expected switches <= ln n + T ln(1/(1-eta)) (oblivious)", scope="oblivious"))
 
     def reset(self, n_actions, horizon, replicas, rng):
         super().reset(n_actions, horizon, replicas, rng)
@@ -367,7 +367,7 @@ class GumbelFTPL(_BlockCumulative):
     def claims(self):
         expected = hedge_claims(self.eta, label="mw-ftpl")[0]
         return (Claim(metric=expected.metric, bound=expected.bound, kind=expected.kind,
-                      name=expected.name + " (oblivious)", source=expected.source + "; Gumbel-max marginals"),)
+                      name=expected.name + " (oblivious)", scope="oblivious", source=expected.source + "; Gumbel-max marginals"),)
 
     def reset(self, n_actions, horizon, replicas, rng):
         super().reset(n_actions, horizon, replicas, rng)

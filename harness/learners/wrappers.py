@@ -193,7 +193,8 @@ class EpochRestart(Learner):
                                  kind="high_probability",
                                  name=f"epoch-restart(k={k}): switches <= (k+1) m - 1 w.p. 1 - delta, "
                                       f"m = ceil(ln(1/delta)/ln(k/s)), s from '{claim.name}'",
-                                 source="derived in harness.learners.wrappers.EpochRestart (Markov per epoch)"))
+                                 source="derived in harness.learners.wrappers.EpochRestart (Markov per epoch)",
+                                 scope=claim.scope))
         return tuple(out)
 
     def reset(self, n_actions, horizon, replicas, rng):

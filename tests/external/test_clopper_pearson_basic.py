@@ -29,3 +29,24 @@ def test_rule_of_three():
         high = clopper_pearson(0, N, 0.95, "less").high
         assert high == pytest.approx(1 - 0.05 ** (1 / N), rel=1e-10)
         assert high == pytest.approx(3 / N, rel=0.02)
+
+
+def test_grid_matches_scipy_exact():
+    """k for n in a grid (every k up to n = 20), at several confidences and all three alternatives, equals
+    scipy.stats.binomtest(k, n).proportion_ci(method="exact") (Clopper and Pearson 1934)."""
+    for n in (1, 2, 3, 7, 20, 201):
+        for k in (range(n + 1) if n <= 20 else (0, 1, 2, 17, 100, 199, 200, 201)):
+            for confidence in (0.8, 0.95, 0.99):
+                for alternative in ("two-sided", "greater", "less"):
+                    ref = stats.binomtest(k, n, alternative=alternative).proportion_ci(
+                        confidence_level=confidence, method="exact")
+                    got = clopper_pearson(k, n, confidence, alternative)
+                    assert (got.low, got.high) == pytest.approx((ref.low, ref.high), abs=1e-10), (k, n)
+
+
+def test_closed_forms_at_the_edges():
+    """k = 0: upper = 1 - (alpha/2)^(1/n); k = n: lower = (alpha/2)^(1/n) (closed forms of the beta
+    quantiles with one parameter 1; Clopper and Pearson 1934)."""
+    for n in (1, 10, 500):
+        assert clopper_pearson(0, n, 0.95).high == pytest.approx(1 - 0.025 ** (1 / n), rel=1e-10)
+        assert clopper_pearson(n, n, 0.95).low == pytest.approx(0.025 ** (1 / n), rel=1e-10)
