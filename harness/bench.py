@@ -216,16 +216,20 @@ def _sweep(horizon, replicas, n_actions, quick=False):
         runner.BLOCK_ENTRIES = saved
 
 
-def _scaling(horizon, replicas, n_actions, warm_up=True):
+def _scaling(horizon, replicas, n_actions, chunk=256, warm_up=True):
     learner = example("hedge")
+    _warm(learner, n_actions)
     started = time.perf_counter()
     if warm_up:  # start the worker pool and load the kernels in it
         run(learner, _adversary(True), 256, n_actions, replicas=4 * 8, seed=1, n_jobs=2, chunk=8)
     warm = time.perf_counter() - started
-    one = throughput(learner, horizon, replicas, n_actions, n_jobs=1)
-    two = throughput(learner, horizon, replicas, n_actions, n_jobs=2)
-    return {"learner": "hedge", "horizon": horizon, "replicas": replicas, "chunks": math.ceil(replicas / 256),
-            "warmup_s": warm, "jobs1_rps": one, "jobs2_rps": two, "ratio": two / one}
+    rates = []
+    for jobs in (1, 2):
+        started = time.perf_counter()
+        run(learner, _adversary(True), horizon, n_actions, replicas=replicas, seed=0, n_jobs=jobs, chunk=chunk)
+        rates.append(replicas * horizon / (time.perf_counter() - started))
+    return {"learner": "hedge", "horizon": horizon, "replicas": replicas, "chunks": math.ceil(replicas / chunk),
+            "warmup_s": warm, "jobs1_rps": rates[0], "jobs2_rps": rates[1], "ratio": rates[1] / rates[0]}
 
 
 def main(horizon=100_000, replicas=1024, n_actions=10, learners=None, quick=False, large_actions=1000,
@@ -265,8 +269,8 @@ def main(horizon=100_000, replicas=1024, n_actions=10, learners=None, quick=Fals
         report["sweep"] = {"horizon": h, "replicas": r, "block_entries": SWEEP_BLOCK_ENTRIES,
                            "rows": _sweep(h, r, n_actions, quick)}
     if "scaling" in sections:
-        h, r = (500, 64) if quick else (250_000, 4096)
-        report["scaling"] = _scaling(h, r, n_actions, warm_up=not quick)
+        h, r, c = (500, 64, 16) if quick else (250_000, 4096, 256)
+        report["scaling"] = _scaling(h, r, n_actions, chunk=c, warm_up=not quick)
     report["load_after"] = _load()
     return report
 
