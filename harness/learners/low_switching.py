@@ -14,8 +14,10 @@ Every fast path takes the cumulative losses of a block at once (shared by
 all replicas when the sequence is) and keeps per-replica work to what the
 method needs: O(1) per round for lazy-ftpl and mw-ftpl (amortised: the
 argmin is recomputed only when the leader's own score passes a level),
-shrinking-dartboard and blocked-hedge; O(n) for random-walk, whose
-perturbed scores all move every round.
+shrinking-dartboard (a draw only when its exponential clock runs out) and
+blocked-hedge; for random-walk, whose perturbed scores all move every round,
+O(number of walks near the lead) per round plus O(1) per other walk per
+window of up to 32 rounds.
 
 Claims valid only against oblivious sequences say so in their name: the
 runner's certification also plays adaptive adversaries, against which a
