@@ -113,7 +113,7 @@ def test_epoch_ends_finds_the_kth_switch(rng):
     def make():
         alive = np.ones(width, dtype=bool)
         alive[::5] = False
-        return (proposed, np.full((steps + 3, 2 * width + 1), -7), 3, rows, np.full(width, -1),
+        return (proposed, np.full((2 * width + 1, steps + 3), -7), 3, rows, np.full(width, -1),
                 np.zeros(width, dtype=np.int64), alive, k)
 
     outs = _both("epoch_ends", make)
@@ -124,7 +124,7 @@ def test_epoch_ends_finds_the_kth_switch(rng):
     for j in range(width):
         hit = np.flatnonzero(switches[:, j] >= k)
         assert ends[j] == ((hit[0] + 1) if (hit.size and alive[j]) else -1)
-        col = out[3:, rows[j]]
+        col = out[rows[j], 3:]
         assert np.array_equal(col, proposed[:, j]) if alive[j] else np.all(col == -7)
 
 

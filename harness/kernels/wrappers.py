@@ -27,13 +27,15 @@ def _np_cap_block(proposed, last, switches, budget) -> np.ndarray:
 def _np_epoch_ends(proposed, out, s0, rows, prev, count, alive, k) -> np.ndarray:
     """One epoch-restart cohort's block: (steps, rows) proposals of its inner learner.
 
-    Writes the proposals of rows still ``alive`` into ``out[s0:, rows]``, and
+    Writes the proposals of rows still ``alive`` into ``out[rows, s0:]`` (``out`` is
+    replica-major, (replicas, steps), so a cohort of one replica writes one
+    contiguous row rather than a column of a round-major array), and
     returns for each row the first step at which its switch count (``count``,
     carried from earlier blocks, with ``prev`` the last proposal, -1 before
     any) reaches ``k``, for alive rows; -1 where it does not. ``prev`` and
     ``count`` are advanced over the whole block in place."""
     live = np.flatnonzero(alive)
-    out[s0:, rows[live]] = proposed[:, live]
+    out[rows[live], s0:] = proposed[:, live].T
     before = np.concatenate([prev[None], proposed[:-1]], axis=0)
     running = count[None] + np.cumsum((proposed != before) & (before >= 0), axis=0)
     over = (running >= k) & alive[None]
@@ -69,7 +71,7 @@ if numba is not None:
             for j in range(width):
                 a = proposed[s, j]
                 if alive[j]:
-                    out[s0 + s, rows[j]] = a
+                    out[rows[j], s0 + s] = a
                 b = prev[j]
                 count[j] += (a != b) & (b >= 0)
                 prev[j] = a

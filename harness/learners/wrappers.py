@@ -273,7 +273,7 @@ class EpochRestart(Learner):
     def play_block(self, losses):
         steps = losses.shape[0]
         shared = losses.ndim == 2
-        out = np.empty((steps, self._replicas), dtype=np.int64)
+        out = np.empty((self._replicas, steps), dtype=np.int64)  # replica-major: cohorts write rows
         events: list = []   # heap of (step, rows ending their epoch at that step)
         pending: dict = {}
 
@@ -297,7 +297,7 @@ class EpochRestart(Learner):
             if fresh is not None and s + 1 < steps:
                 play(fresh, s + 1)
         self._t += steps
-        return out
+        return out.T
 
 
 def _restart_bound(claim: Claim, k: int) -> Callable:
