@@ -175,6 +175,7 @@ class EpochRestart(Learner):
     """
 
     example_params = {"inner": "shrinking-dartboard", "switches_per_epoch": 20}
+    _block_scale = 4  # every live copy costs a call per block: fewer, longer blocks (runner.BLOCK_ENTRIES)
 
     def __init__(self, inner=None, switches_per_epoch=None, inner_params=None):
         self.inner = inner
