@@ -15,6 +15,7 @@ import numpy as np
 
 from harness import kernels, validate
 from harness.kernels import pareto_length  # noqa: F401  (the heavy-tail walks' kernels share it)
+from harness.kernels.sequences import OtherLabel, SegmentSchedule  # noqa: F401  (regime shifts' twin)
 from harness.errors import ConfigError
 from harness.protocol import Adversary
 
@@ -50,46 +51,6 @@ class RandomOblivious(Adversary):
         return losses[:, 0, :] if self.shared else losses
 
 
-class SegmentSchedule:
-    """Per-row segments of random length with a label each, streamed across blocks.
-
-    ``remaining[r]`` is how many rounds of row r's current segment are left
-    (0: a new segment starts at the next round). At a segment start the row's
-    uniforms of that round decide the new label and length; every round has
-    its uniforms whether or not it starts a segment, so the sequence is the
-    same whatever the block cut.
-    """
-
-    def __init__(self, rows: int):
-        self.remaining = np.zeros(rows, dtype=np.int64)
-        self.label = np.full(rows, -1, dtype=np.int64)
-
-    def labels(self, u_length, u_label, new_length, new_label) -> tuple[np.ndarray, np.ndarray]:
-        """Labels (steps, rows) for the next block and a (steps, rows) mask of segment starts.
-
-        ``new_length(u)`` and ``new_label(old, u)`` map uniforms to lengths and labels.
-        """
-        steps, rows = u_length.shape
-        start_label = self.label.copy()
-        changes = np.full((steps, rows), -1, dtype=np.int64)
-        pos = self.remaining.copy()
-        while True:
-            r = np.flatnonzero(pos < steps)
-            if r.size == 0:
-                break
-            p = pos[r]
-            self.label[r] = new_label(self.label[r], u_label[p, r])
-            changes[p, r] = self.label[r]
-            pos[r] = p + new_length(u_length[p, r])
-        self.remaining = pos - steps
-        starts = changes >= 0
-        last = np.where(starts, np.arange(steps)[:, None], -1)
-        np.maximum.accumulate(last, axis=0, out=last)
-        cols = np.arange(rows)[None, :]
-        out = np.where(last >= 0, changes[np.maximum(last, 0), cols], start_label[None, :])
-        return out, starts
-
-
 def gap_and_base(gap, base) -> tuple[float, float]:
     """A gap in (0, 1] below a base mean in [0, 1], leaving the better mean base - gap >= 0."""
     gap = validate.real("gap", gap, low=0.0, high=1.0, low_open=True)
@@ -97,19 +58,6 @@ def gap_and_base(gap, base) -> tuple[float, float]:
     if base - gap < 0:
         raise ConfigError(f"gap: base - gap must be >= 0 (base={base:g}), got {gap:g}; lower gap or raise base")
     return gap, base
-
-
-class OtherLabel:
-    """A label map: uniform over the n labels at the first segment, else uniform over the n-1 others."""
-
-    def __init__(self, n: int):
-        self.n = n
-
-    def __call__(self, old, u):
-        n = self.n
-        fresh = np.minimum((u * n).astype(np.int64), n - 1)
-        step = 1 + np.minimum((u * (n - 1)).astype(np.int64), n - 2)
-        return np.where(old < 0, fresh, (old + step) % n)
 
 
 # -- i.i.d. ------------------------------------------------------------------------
@@ -262,19 +210,17 @@ class RegimeShift(RandomOblivious):
 
     def reset(self, n_actions, horizon, replicas, rng):
         super().reset(n_actions, horizon, replicas, rng)
-        self._segments = SegmentSchedule(self._rows)
-        self._label = OtherLabel(n_actions)
+        self._remaining = np.zeros(self._rows, dtype=np.int64)   # rounds left in each row's segment
+        self._best = np.full(self._rows, -1, dtype=np.int64)     # each row's better action, -1 before any
 
-    def _length(self, u):
-        return pareto_length(u, self.scale, self.alpha, self._horizon + 1)
+    def _block(self, t0, t1):
+        """(losses (steps, rows, n), the better action of each round (steps, rows))."""
+        u = self._uniforms(t1 - t0, self._n + 2)
+        return kernels.regime_shift(u, self._remaining, self._best, float(self.base), float(self.gap),
+                                    float(self.scale), float(self.alpha), int(self._horizon + 1))
 
     def losses(self, t0, t1):
-        steps = t1 - t0
-        u = self._uniforms(steps, self._n + 2)
-        best, _ = self._segments.labels(u[:, :, self._n], u[:, :, self._n + 1], self._length, self._label)
-        p = np.full((steps, self._rows, self._n), self.base)
-        np.put_along_axis(p, best[:, :, None], self.base - self.gap, axis=2)
-        return self._emit((u[:, :, :self._n] < p).astype(np.float64))
+        return self._emit(self._block(t0, t1)[0])
 
 
 @REGISTRY.register("near-tie", "leading actions' cumulative losses kept within margin, so leaders keep changing")

@@ -157,9 +157,8 @@ def test_regime_lengths_follow_the_pareto_law():
     probability < 1e-5 over the 4 checks."""
     T, R, scale, alpha = 20000, 300, 5.0, 1.5
     adv = _reset(adversaries.get("regime-shift", scale=scale, alpha=alpha, gap=0.5), 3, T, R, seed=5)
-    labels = adv._segments.labels  # noqa: the schedule itself, without Bernoulli noise
-    u = adv._rng.random((T, R, 5))
-    best, starts = labels(u[:, :, 3], u[:, :, 4], adv._length, adv._label)
+    _, best = adv._block(0, T)  # the schedule itself: each round's better action, without Bernoulli noise
+    starts = np.vstack([np.ones((1, R), dtype=bool), best[1:] != best[:-1]])  # a new regime's label differs
     lengths = []
     for r in range(R):
         s = np.flatnonzero(starts[:, r])

@@ -85,6 +85,81 @@ def _np_near_tie(u, margin, cum) -> np.ndarray:
     return out
 
 
+class SegmentSchedule:
+    """Per-row segments of random length with a label each, streamed across blocks.
+
+    ``remaining[r]`` is how many rounds of row r's current segment are left
+    (0: a new segment starts at the next round). At a segment start the row's
+    uniforms of that round decide the new label and length; every round has
+    its uniforms whether or not it starts a segment, so the sequence is the
+    same whatever the block cut.
+    """
+
+    def __init__(self, rows: int):
+        self.remaining = np.zeros(rows, dtype=np.int64)
+        self.label = np.full(rows, -1, dtype=np.int64)
+
+    def labels(self, u_length, u_label, new_length, new_label) -> tuple[np.ndarray, np.ndarray]:
+        """Labels (steps, rows) for the next block and a (steps, rows) mask of segment starts.
+
+        ``new_length(u)`` and ``new_label(old, u)`` map uniforms to lengths and labels.
+        """
+        steps, rows = u_length.shape
+        start_label = self.label.copy()
+        changes = np.full((steps, rows), -1, dtype=np.int64)
+        pos = self.remaining.copy()
+        while True:
+            r = np.flatnonzero(pos < steps)
+            if r.size == 0:
+                break
+            p = pos[r]
+            self.label[r] = new_label(self.label[r], u_label[p, r])
+            changes[p, r] = self.label[r]
+            pos[r] = p + new_length(u_length[p, r])
+        self.remaining = pos - steps
+        starts = changes >= 0
+        last = np.where(starts, np.arange(steps)[:, None], -1)
+        np.maximum.accumulate(last, axis=0, out=last)
+        cols = np.arange(rows)[None, :]
+        out = np.where(last >= 0, changes[np.maximum(last, 0), cols], start_label[None, :])
+        return out, starts
+
+
+class OtherLabel:
+    """A label map: uniform over the n labels at the first segment, else uniform over the n-1 others."""
+
+    def __init__(self, n: int):
+        self.n = n
+
+    def __call__(self, old, u):
+        n = self.n
+        fresh = np.minimum((u * n).astype(np.int64), n - 1)
+        step = 1 + np.minimum((u * (n - 1)).astype(np.int64), n - 2)
+        return np.where(old < 0, fresh, (old + step) % n)
+
+
+def _np_regime_shift(u, remaining, label, base, gap, scale, alpha, cap) -> tuple:
+    """adversaries.oblivious.RegimeShift's losses for a block, (steps, rows, n), and each
+    round's better action, (steps, rows).
+
+    ``u`` (steps, rows, n + 2): per (round, row) the n losses' uniforms, then
+    a new segment's length (Pareto, capped at ``cap``) and label (uniform over
+    the other actions) where a segment starts. ``remaining`` (rounds left in
+    each row's segment; 0: one starts at the next round) and ``label`` (-1
+    before the first) advance in place. The label's action has mean
+    base - gap, every other action base."""
+    steps, rows, width = u.shape
+    n = width - 2
+    schedule = SegmentSchedule(rows)
+    schedule.remaining, schedule.label = remaining.copy(), label.copy()
+    best, _ = schedule.labels(u[:, :, n], u[:, :, n + 1], lambda x: pareto_length(x, scale, alpha, cap),
+                              OtherLabel(n))
+    remaining[:], label[:] = schedule.remaining, schedule.label
+    p = np.full((steps, rows, n), base)
+    np.put_along_axis(p, best[:, :, None], base - gap, axis=2)
+    return (u[:, :, :n] < p).astype(np.float64), best
+
+
 if numba is not None:
 
     @jit
@@ -159,5 +234,27 @@ if numba is not None:
                     out[s, r, j] = 1.0
         return out
 
+    @jit
+    def _nb_regime_shift(u, remaining, label, base, gap, scale, alpha, cap):
+        steps, rows, width = u.shape
+        n = width - 2
+        out = np.empty((steps, rows, n))
+        best = np.empty((steps, rows), dtype=np.int64)
+        for s in range(steps):
+            for r in range(rows):
+                if remaining[r] == 0:  # a segment starts at this round
+                    x = u[s, r, n + 1]
+                    if label[r] < 0:
+                        label[r] = min(np.int64(x * n), n - 1)
+                    else:
+                        label[r] = (label[r] + 1 + min(np.int64(x * (n - 1)), n - 2)) % n
+                    remaining[r] = _nb_pareto_one(u[s, r, n], scale, alpha, cap)
+                remaining[r] -= 1
+                b = label[r]
+                best[s, r] = b
+                for j in range(n):
+                    out[s, r, j] = 1.0 if u[s, r, j] < (base - gap if j == b else base) else 0.0
+        return out, best
 
-KERNELS = ("pareto_walk", "tie_walk", "near_tie")
+
+KERNELS = ("pareto_walk", "tie_walk", "near_tie", "regime_shift")
