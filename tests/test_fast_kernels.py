@@ -257,15 +257,16 @@ def test_slow_rounds_then_fast_blocks_equal_slow_all_along(rng, name, params):
 # -- FTPL probabilities --------------------------------------------------------------------
 
 
-@pytest.mark.parametrize("n, spread", [(7, 0.5), (40, 30.0), (200, 3.0), (300, 80.0)])
+@pytest.mark.parametrize("n, spread", [(7, 0.5), (40, 30.0), (200, 3.0), (300, 80.0), (1000, 0.2)])
 def test_ftpl_probabilities_are_exact_with_fewer_nodes(rng, n, spread):
-    """Gauss-Legendre with m nodes integrates polynomials of degree <= 2m - 1 exactly (common
-    practice): the node count chosen from the active actions must give the same values as
-    the old full form, a_i sum_k w_k prod_{j != i} (1 - a_j y_k) over every action with
-    ceil(n/2) + 8 nodes, computed independently here with log1p products."""
+    """Against the plain form, a_i sum_k w_k prod_{j != i} (1 - a_j y_k) over every action with
+    ceil(n/2) + 8 Gauss-Legendre nodes on [0, 1] (exact for these polynomials: an m-node rule
+    integrates degree <= 2m - 1 exactly, common practice), computed here with log1p products:
+    the active-set rule (few actions near the lead) and the 64-node reach-limited rule (many:
+    n = 200, 1000) agree to 1e-11 relative."""
     from numpy.polynomial.legendre import leggauss
 
-    from harness.learners.experts import ftpl_probabilities
+    from harness.learners.experts import FTPL_NODES, ftpl_probabilities
 
     cum = rng.random((3, n)) * spread
     cum[:, 0] = 0.0
@@ -278,8 +279,11 @@ def test_ftpl_probabilities_are_exact_with_fewer_nodes(rng, n, spread):
     full = a * (np.exp(logs.sum(axis=1, keepdims=True) - logs) @ w)
     full /= full.sum(axis=1, keepdims=True)
     np.testing.assert_allclose(got, full, rtol=1e-11, atol=1e-300)
+    active = (a >= kernels.FTPL_TINY).sum(axis=1)
     if spread > 50:
-        assert (a < kernels.FTPL_TINY).any()   # the inactive-action branch was exercised
+        assert (active < n).all()                  # the inactive-action branch was exercised
+    if n >= 200:
+        assert (active > 2 * FTPL_NODES).all()     # and the reach-limited rule
 
 
 @compiled
@@ -289,7 +293,8 @@ def test_ftpl_rows_twins_identical(rng):
     a = np.exp(-rng.random((6, 90)) * 60)
     a[:, 3] = 1.0
     y, w = _gauss_legendre_01(46)
-    _same(_both("ftpl_rows", lambda: (a, y, w)))
+    span = rng.random((6, 1)) * 0.5 + 0.5
+    _same(_both("ftpl_rows", lambda: (a, span * y, span * w)))
 
 
 # -- random-walk perturbation: the windowed sampler ------------------------------------------

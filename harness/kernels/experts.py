@@ -102,8 +102,9 @@ def _np_perturbed_leader(losses, cum, eta, rng) -> np.ndarray:
 def _np_ftpl_rows(a, y, w) -> np.ndarray:
     """Unnormalised FTPL probabilities a_i sum_k w_k prod_{j != i} (1 - a_j y_k), per row.
 
-    ``a`` (rows, n) = exp(-eta (L - min L)); ``y``, ``w`` Gauss-Legendre nodes
-    and weights on [0, 1]. Factors with a_j < FTPL_TINY are exactly 1 in
+    ``a`` (rows, n) = exp(-eta (L - min L)); ``y``, ``w`` (rows, m): each row's
+    quadrature nodes and weights (Gauss-Legendre on [0, span]). Factors with
+    a_j < FTPL_TINY are exactly 1 in
     floating point and are skipped: Q(y_k) = prod over the others; for an
     active i the product without i is Q(y_k) / (1 - a_i y_k) (the same rounded
     factor divided back out: no cancellation), for an inactive i it is Q(y_k).
@@ -113,18 +114,19 @@ def _np_ftpl_rows(a, y, w) -> np.ndarray:
     for r in range(rows):
         act = np.flatnonzero(a[r] >= FTPL_TINY)
         aa = a[r, act]
-        q = np.ones(y.size)
+        yr = y[r]
+        q = np.ones(yr.size)
         for j, aj in enumerate(aa):
-            q = q * (1.0 - aj * y)
+            q = q * (1.0 - aj * yr)
             if j % 16 == 15:
                 q[q < FTPL_FLUSH] = 0.0
-        wq = w * q
+        wq = w[r] * q
         total = 0.0
-        for k in range(y.size):
+        for k in range(yr.size):
             total += wq[k]
         acc = np.zeros(aa.size)
-        for k in range(y.size):
-            acc += wq[k] / (1.0 - aa * y[k])
+        for k in range(yr.size):
+            acc += wq[k] / (1.0 - aa * yr[k])
         out[r] = a[r] * total
         out[r, act] = aa * acc
     return out
@@ -277,7 +279,7 @@ if numba is not None:
     @jit
     def _nb_ftpl_rows(a, y, w):
         rows, n = a.shape
-        m = y.shape[0]
+        m = y.shape[1]
         out = np.empty((rows, n))
         q = np.empty(m)
         wq = np.empty(m)
@@ -294,20 +296,21 @@ if numba is not None:
             for j in range(k):
                 aj = aa[j]
                 for i in range(m):  # across nodes: vector lanes, each product in action order
-                    q[i] = q[i] * (1.0 - aj * y[i])
+                    q[i] = q[i] * (1.0 - aj * y[r, i])
                 if j % 16 == 15:
                     for i in range(m):
                         if q[i] < FTPL_FLUSH:
                             q[i] = 0.0
             total = 0.0
             for i in range(m):
-                wq[i] = w[i] * q[i]
+                wq[i] = w[r, i] * q[i]
                 total += wq[i]
             for j in range(k):
                 acc[j] = 0.0
             for i in range(m):
+                yi = y[r, i]
                 for j in range(k):  # across actions: vector lanes, each sum in node order
-                    acc[j] += wq[i] / (1.0 - aa[j] * y[i])
+                    acc[j] += wq[i] / (1.0 - aa[j] * yi)
             k = 0
             for j in range(n):
                 if a[r, j] >= FTPL_TINY:

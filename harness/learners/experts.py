@@ -213,33 +213,55 @@ def ftpl_probabilities(cum: np.ndarray, eta: float, max_entries: int = 1 << 20) 
     winner's value must exceed every c_j's shift, and substituting
     y = exp(min - x) gives
 
-        P[i] = a_i \int_0^1 prod_{j != i} (1 - a_j y) dy,
+        P[i] = a_i \int_0^1 f_i(y) dy,   f_i(y) = prod_{j != i} (1 - a_j y),
 
     a polynomial of degree n-1 in y, so Gauss-Legendre quadrature with
-    ceil(n/2) nodes on [0, 1] is exact. Exact to rounding and cheaper: a
-    factor with a_j < 2^-54 is exactly 1 in floating point, so only the k
-    "active" actions enter the product Q(y) = prod_j (1 - a_j y); then
-    P[i] = a_i sum_k w_k Q(y_k) / (1 - a_i y_k) for an active i (its own
-    rounded factor divided back out) and a_i sum_k w_k Q(y_k) for the rest,
-    with ceil(k/2) nodes (ceil((k+1)/2) when some action is inactive, whose
-    integrand Q has degree k). Cost O(k^2) per row, in a compiled loop
-    (``kernels.ftpl_rows``). ``max_entries`` is accepted for compatibility;
-    no scratch array of rows x n x nodes is built any more.
+    ceil(n/2) nodes on [0, 1] is exact. A factor with a_j < 2^-54 is exactly
+    1 in floating point, so only the k "active" actions enter the product
+    Q(y) = prod_j (1 - a_j y); then f_i(y_k) = Q(y_k) / (1 - a_i y_k) for an
+    active i (its own rounded factor divided back out: no cancellation) and
+    Q(y_k) for the rest. Node count:
+
+    - ceil(k/2) nodes (ceil((k+1)/2) when some action is inactive, whose
+      integrand Q has degree k): exact, used while that is at most 64;
+    - otherwise 64 nodes on [0, s], s = min(1, 80 / S), S = sum_j a_j. Exact
+      to far below rounding: f_i <= exp(-(S - 1) y) makes the part beyond s
+      at most e^{-79} / 79; f_i is entire with |f_i(y)| <= exp(S |y|), so on
+      the Bernstein ellipse of [0, s] with rho = 8 it is at most
+      exp(80 * 2.54), and the Gauss error bound (64/15) M rho^{-2m} /
+      (rho^2 - 1) (Trefethen 2013, Approximation Theory and Approximation
+      Practice, Theorem 19.3; from memory) is below 1e-28, against
+      \int f_i >= 1 / (4 S) >= 1 / (4 n).
+
+    Cost O(k min(k, 128)) per row in a compiled loop (``kernels.ftpl_rows``)
+    instead of O(n^2). ``max_entries`` is accepted for compatibility; no
+    scratch array of rows x n x nodes is built any more.
     """
     cum = np.atleast_2d(np.asarray(cum, dtype=float))
     rows, n = cum.shape
     a = np.exp(-eta * (cum - cum.min(axis=1, keepdims=True)))
     active = (a >= kernels.FTPL_TINY).sum(axis=1)
     nodes = (active + (active < n) + 1) // 2
+    bounded = nodes > FTPL_NODES
+    span = np.where(bounded, np.minimum(1.0, FTPL_REACH / a.sum(axis=1)), 1.0)
+    nodes = np.where(bounded, FTPL_NODES, nodes)
     out = np.empty_like(a)
     for m in np.unique(nodes):
+        idx = np.flatnonzero(nodes == m)
         y, w = _gauss_legendre_01(int(m))
-        if nodes.size and np.all(nodes == m):
-            out = kernels.ftpl_rows(a, y, w)
+        sub = a if idx.size == rows else np.ascontiguousarray(a[idx])
+        part = kernels.ftpl_rows(sub, span[idx, None] * y, span[idx, None] * w)
+        if idx.size == rows:
+            out = part
         else:
-            idx = np.flatnonzero(nodes == m)
-            out[idx] = kernels.ftpl_rows(np.ascontiguousarray(a[idx]), y, w)
+            out[idx] = part
     return out / out.sum(axis=1, keepdims=True)
+
+
+# Above this many exact nodes, FTPL's quadrature switches to a fixed node count on a
+# reach-limited interval (see ftpl_probabilities for the error bound).
+FTPL_NODES = 64
+FTPL_REACH = 80.0
 
 
 _GAUSS_LEGENDRE: dict = {}
