@@ -68,6 +68,15 @@ def _np_column_totals(w) -> np.ndarray:
 if numba is not None:
 
     @jit
+    def _nb_column_totals(w, out):
+        """out[r] = sum_j w[j, r], in action order; the loop over replicas is innermost (vector lanes)."""
+        for r in range(w.shape[1]):
+            out[r] = 0.0
+        for j in range(w.shape[0]):
+            for r in range(w.shape[1]):
+                out[r] += w[j, r]
+
+    @jit
     def _nb_bandit_weights(losses, w, u, cur, p_cur, acc, pos, block, mix, rate, ix, gain):
         steps, replicas, n = losses.shape
         out = np.empty((steps, replicas), dtype=np.int64)
@@ -80,11 +89,7 @@ if numba is not None:
             if pos[0] == 0:
                 # loops over replicas innermost: each replica's sums keep their
                 # order, and independent replicas fill the vector lanes
-                for r in range(replicas):
-                    scale[r] = 0.0
-                for j in range(n):
-                    for r in range(replicas):
-                        scale[r] += w[j, r]
+                _nb_column_totals(w, scale)
                 for r in range(replicas):
                     scale[r] = (1.0 - mix) / scale[r]
                     c[r] = 0.0
@@ -111,11 +116,7 @@ if numba is not None:
                         w[a, r] = w[a, r] * np.exp(rate * ((1.0 - y) / (p_cur[r] + ix)))
                     else:
                         w[a, r] = w[a, r] * np.exp(-rate * (y / (p_cur[r] + ix)))
-                for r in range(replicas):
-                    c[r] = 0.0
-                for j in range(n):
-                    for r in range(replicas):
-                        c[r] += w[j, r]
+                _nb_column_totals(w, c)
                 for r in range(replicas):
                     if c[r] < 1e-100 or c[r] > 1e100:
                         for j in range(n):
