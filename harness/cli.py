@@ -317,8 +317,10 @@ def _cmd_compare(args) -> int:
         try:
             learner = get_learner(name, **{**(spec.get("params") or {}), **params})
         except ConfigError as exc:
-            raise ConfigError(f"{'--learner-param' if params else '--learner'}: the learner of the {origin} "
-                              f"cannot be built ({exc}); give --learner NAME|module:Class") from None
+            if params:
+                raise ConfigError(f"--learner-param: {exc} (the learner of the {origin})") from None
+            raise ConfigError(f"--learner: the learner of the {origin} cannot be built ({exc}); give --learner "
+                              f"NAME|module:Class") from None
     result = compare(profile, learner, seed=args.seed, replicas=args.replicas, n_jobs=jobs or 1, progress=True)
     print(result.table())
     if args.out:

@@ -396,32 +396,31 @@ def order_statistic_ranks(n: int, quantile: float, confidence: float = 0.95,
     With K ~ Binomial(n, q) and a the error allowed on a side (alpha/2
     two-sided, alpha one-sided):
 
-    - lower end X_(l), l the largest rank with P[K <= l - 1] <= a, so that
-      P[X_(l) <= x_q] >= P[K >= l] >= 1 - a;
-    - upper end X_(u), u the smallest rank with P[K >= u] <= a, so that
+    - lower end X_(l), l = the smallest k with P[K <= k] >= a (the binomial
+      quantile), so P[K <= l - 1] < a and P[X_(l) <= x_q] >= P[K >= l] > 1 - a;
+    - upper end X_(u), u - 1 = the smallest k with P[K > k] <= a, so that
       P[X_(u) >= x_q] >= P[K <= u - 1] >= 1 - a.
 
     Both inequalities hold for every distribution, continuous or not,
     because #{X_i <= x_q} ~ Binomial(n, F(x_q)) with F(x_q) >= q and
     #{X_i < x_q} ~ Binomial(n, F(x_q-)) with F(x_q-) <= q (Thompson 1936;
     David and Nagaraja 2003, Section 7.1). An end with no such rank in
-    1..n is None.
+    1..n is None. The ranks are found with scipy.stats.binom's ppf and isf,
+    as scipy.stats.quantile_test does, so the two agree exactly, including
+    where a binomial tail equals a to the last bit.
     """
     n = validate.positive_int("n", n)
     quantile = validate.real("quantile", quantile, low=0.0, high=1.0, low_open=True, high_open=True)
     confidence = validate.real("confidence", confidence, low=0.0, high=1.0, low_open=True, high_open=True)
     validate.choice("alternative", alternative, ALTERNATIVES)
     a = (1.0 - confidence) / (2 if alternative == "two-sided" else 1)
-    ks = np.arange(n + 1)
     low = high = None
     if alternative != "less":
-        cdf = _st.binom.cdf(ks[:-1], n, quantile)        # P[K <= l - 1] for l = 1..n
-        ok = np.flatnonzero(cdf <= a)
-        low = int(ok[-1]) + 1 if ok.size else None
+        k = int(_st.binom.ppf(a, n, quantile))
+        low = k if k >= 1 else None
     if alternative != "greater":
-        sf = _st.binom.sf(ks[:-1], n, quantile)          # P[K >= u] = P[K > u - 1] for u = 1..n
-        ok = np.flatnonzero(sf <= a)
-        high = int(ok[0]) + 1 if ok.size else None
+        k = int(_st.binom.isf(a, n, quantile)) + 1
+        high = k if k <= n else None
     return low, high
 
 
