@@ -77,7 +77,6 @@ from __future__ import annotations
 import copy
 import hashlib
 import math
-import sys
 import time
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
@@ -274,9 +273,9 @@ def record(learner, adversaries, horizons, n_actions, replicas=4000, seed=0, *, 
             omitted.append({"quantile": q, "reason": f"needs at least {need} replicas for its interval at "
                                                      f"confidence {confidence:g}; recorded with {replicas}"})
     if not kept:
+        fewest = min(stats.quantile_min_replicas(q, confidence) for q in levels)
         raise ConfigError(f"replicas: {replicas} allow none of the quantiles {levels} at confidence "
-                          f"{confidence:g} (the lowest needs {min(stats.quantile_min_replicas(q, confidence) for q in levels)}); "
-                          f"raise replicas")
+                          f"{confidence:g} (the lowest needs {fewest}); raise replicas")
     metrics = _metrics(switching_cost)
     plans = []
     for a, adversary in enumerate(adversaries):
@@ -622,7 +621,8 @@ class PinnedSequence(Adversary):
         self.memory = getattr(inner, "memory", 1)
 
     def reset(self, n_actions, horizon, replicas, rng):
-        self.inner.reset(n_actions, horizon, replicas, np.random.default_rng(np.random.SeedSequence(self.sequence_seed)))
+        pinned = np.random.default_rng(np.random.SeedSequence(self.sequence_seed))
+        self.inner.reset(n_actions, horizon, replicas, pinned)
 
     def losses(self, t0, t1):
         return self.inner.losses(t0, t1)

@@ -60,7 +60,10 @@ def test_critical_counts_bound_the_rejection_region():
     for base in (0, 3, 40, 400):
         c = exceedance_critical(1000, base, 1000, 0.001, "greater")
         d = exceedance_critical(1000, base, 1000, 0.001, "less")
-        p = lambda a, alt: stats.fisher_exact([[a, 1000 - a], [base, 1000 - base]], alternative=alt).pvalue  # noqa: E731
+
+        def p(a, alt, base=base):
+            return stats.fisher_exact([[a, 1000 - a], [base, 1000 - base]], alternative=alt).pvalue
+
         assert p(c, "greater") <= 0.001 < p(c - 1, "greater") and p(1000, "greater") <= 0.001
         if d is None:
             assert p(0, "less") > 0.001
