@@ -723,20 +723,15 @@ def format_markdown(cert) -> str:
     return "\n".join(out)
 
 
-def write_report(cert, directory) -> dict:
-    """Write ``certificate.json`` and ``summary.md`` into ``directory``; returns their paths.
+def write_report(cert, directory, **options) -> dict:
+    """Write the report of ``cert`` into ``directory``; returns the paths written.
 
-    The reports issue extends this with HTML and figures (harness.report).
+    ``certificate.json``, ``summary.md`` (Markdown), ``report.html`` (self-contained) and ``figures/``:
+    see :func:`harness.report.write_report`, which takes the keyword ``options``.
     """
-    directory = Path(directory)
-    try:
-        directory.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise ConfigError(f"--report {directory}: cannot create the directory ({exc.strerror}); "
-                          f"choose a writable path") from None
-    paths = {"certificate": cert.save(directory / "certificate.json"), "summary": directory / "summary.md"}
-    paths["summary"].write_text(cert.markdown(), encoding="utf-8")
-    return paths
+    from .report import write_report as write
+
+    return write(cert, directory, **options)
 
 
 # -- loading and checking ----------------------------------------------------------------------

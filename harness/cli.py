@@ -179,13 +179,90 @@ def _cmd_bench(args) -> int:
     return EXIT_PASS
 
 
+def _add_search(sub):
+    p = sub.add_parser("search", help="search for a loss sequence that breaks a campaign's claim; save it")
+    p.add_argument("campaign", metavar="CAMPAIGN.toml", nargs="?",
+                   help="campaign file ([learner], [[claims]], [grid], [search])")
+    p.add_argument("--demo", action="store_true",
+                   help="search the bundled demo (a model fleet whose controller is tuned too hot)")
+    p.add_argument("--claim", help="search only this claim (by name); default: every claim, in order")
+    p.add_argument("--method", choices=["hypothesis", "cem", "random"],
+                   help="search method (default: the campaign's [search] method, else hypothesis)")
+    p.add_argument("--out", default=None, metavar="FILE",
+                   help="where to save a counterexample (default: <campaign name>-counterexample.npz)")
+    p.add_argument("--json", action="store_true", help="print JSON instead of text")
+    p.set_defaults(handler=_cmd_search)
+
+
+def _cmd_search(args) -> int:
+    from .search.campaign import demo_path, search_campaign
+
+    if args.demo == bool(args.campaign):
+        raise ConfigError("search: give a campaign file (CAMPAIGN.toml) or --demo, not both or neither")
+
+    def progress(cell):
+        name, horizon, n, found = cell
+        print(f"searched {name} T={horizon} n={n}: {'found' if found else 'nothing'} "
+              f"({found.evaluations} evaluations)", file=sys.stderr)
+
+    outcome = search_campaign(demo_path() if args.demo else args.campaign, claim=args.claim, method=args.method,
+                              out=args.out,
+                              progress=None if args.json or not sys.stderr.isatty() else progress)
+    if args.json:
+        print(json.dumps(outcome.as_dict(), indent=2))
+    else:
+        print(outcome.describe())
+    return EXIT_VIOLATION if outcome.found else EXIT_PASS
+
+
+def _add_replay(sub):
+    p = sub.add_parser("replay", help="rerun a saved counterexample; exit 1 if the learner still breaks the claim")
+    p.add_argument("file", metavar="FILE", help="a counterexample .npz written by `boundbreaker search`")
+    p.add_argument("--learner", help="registry name or module:Class (default: the learner named in the file)")
+    p.add_argument("--learner-param", action="append", metavar="KEY=VALUE", help="learner parameter (repeatable)")
+    p.add_argument("--replicas", type=int, help="replicas (default: as recorded)")
+    p.add_argument("--seed", type=int, help="seed (default: the recorded one, which reproduces the file exactly)")
+    p.add_argument("--json", action="store_true", help="print JSON instead of text")
+    p.set_defaults(handler=_cmd_replay)
+
+
+def _cmd_replay(args) -> int:
+    from .learners import get as get_learner
+    from .search import Counterexample, replay
+    from .search.replay import learner_from_spec
+
+    if args.replicas is not None and args.replicas < 1:
+        raise ConfigError(f"--replicas: must be at least 1, got {args.replicas}")
+    if args.seed is not None and args.seed < 0:
+        raise ConfigError(f"--seed: must be >= 0, got {args.seed}")
+    ce = Counterexample.load(args.file)
+    if args.learner:
+        learner = _named(get_learner, args.learner, params_from(args.learner_param, "--learner-param"),
+                         "--learner", "--learner-param")
+    elif args.learner_param:
+        raise ConfigError("--learner-param: give --learner too (the parameters belong to a named learner)")
+    else:
+        learner = learner_from_spec(ce.learner)
+    result = replay(ce, learner, replicas=args.replicas, seed=args.seed)
+    if args.json:
+        print(json.dumps({"still_violates": result.still_violates, "rate": result.rate, "ci": list(result.ci),
+                          "mean": result.mean, "violations": result.violations, "replicas": result.replicas,
+                          "seed": result.seed, "confidence": result.confidence, "bound": result.bound,
+                          "claim": ce.claim.spec(), "learner": learner.spec(), "evidence": result.evidence},
+                         indent=2, default=str))
+    else:
+        print(result.describe())
+    return EXIT_VIOLATION if result.still_violates else EXIT_PASS
+
+
 def _add_certify(sub):
     p = sub.add_parser("certify", help="judge a learner's claims on a campaign's battery; writes a certificate",
                        description="Certify the claims of a campaign file (or the bundled demo). Without --out or "
                                    "--report, the certificate and a Markdown summary go to reports/<campaign name>/.")
     p.add_argument("campaign", nargs="?", metavar="CAMPAIGN.toml", help="campaign file (see DEVELOPERS.md)")
     p.add_argument("--demo", action="store_true", help="certify the bundled demo campaign (an edge router)")
-    p.add_argument("--report", metavar="DIR", help="write certificate.json and summary.md into DIR")
+    p.add_argument("--report", metavar="DIR", help="write the report into DIR: certificate.json, report.html "
+                                                     "(self-contained), summary.md and figures/")
     p.add_argument("--out", metavar="FILE", help="write the certificate JSON to FILE (no report directory "
                                                    "unless --report is also given)")
     p.add_argument("--jobs", type=int, default=None, help="parallel jobs (-1: all cores); overrides the campaign")
@@ -217,7 +294,9 @@ def _cmd_certify(args) -> int:
     if args.out:
         written.append(cert.save(args.out))
     if report:
-        written.extend(write_report(cert, report).values())
+        # the campaign's own objects: a report never imports code named in a certificate
+        written.extend(write_report(cert, report, learner=campaign.build_learner(),
+                                    adversaries=campaign.build_adversaries(), n_jobs=args.jobs or 1).values())
     for path in written:
         print(f"wrote {path}")
     return {"pass": EXIT_PASS, "fail": EXIT_VIOLATION}.get(cert.verdict, EXIT_INCONCLUSIVE)
@@ -238,6 +317,158 @@ def _slug(name: str) -> str:
 
 COMMANDS = [_add_run, _add_list, _add_bench]
 COMMANDS.append(_add_certify)
+COMMANDS += [_add_search, _add_replay]
+
+
+def _add_report(sub):
+    p = sub.add_parser("report", help="write the HTML and Markdown report of a saved certificate",
+                       description="Rebuild a certificate's report: report.html (self-contained), summary.md, "
+                                   "figures/ and a copy of the certificate. Tail curves come from replaying each "
+                                   "group exactly from the seeds the certificate records.")
+    p.add_argument("certificate", metavar="CERT.json", help="a certificate written by boundbreaker certify")
+    p.add_argument("--out", metavar="DIR", help="output directory (default: the certificate's folder)")
+    p.add_argument("--no-replay", action="store_true", help="skip the replay: no tail curves (fast)")
+    p.add_argument("--replay-limit", type=int, default=None, metavar="N",
+                   help="replay at most N replicas per group (whole chunks; default 4096)")
+    p.add_argument("--jobs", type=int, default=1, help="parallel jobs for the replay (-1: all cores)")
+    p.add_argument("--learner", metavar="NAME|module:Class",
+                   help="the learner that was certified (default: rebuilt from the certificate when it is a "
+                        "registered name; code named in a file is never imported)")
+    p.add_argument("--learner-param", action="append", metavar="KEY=VALUE", help="learner parameter (repeatable)")
+    p.set_defaults(handler=_cmd_report)
+
+
+def _cmd_report(args) -> int:
+    from .certify import Certificate
+    from .report import write_report
+    from .report.replay import DEFAULT_LIMIT
+
+    if args.jobs == 0:
+        raise ConfigError("--jobs: must be a non-zero integer (-1 = all cores), got 0")
+    limit = DEFAULT_LIMIT if args.replay_limit is None else args.replay_limit
+    if limit < 1:
+        raise ConfigError(f"--replay-limit: must be a positive number of replicas, got {limit}")
+    out = args.out or os.path.dirname(os.path.abspath(args.certificate))
+    if os.path.exists(out) and not os.path.isdir(out):
+        raise ConfigError(f"--out {out}: is a file; give a directory")
+    learner = None
+    if args.learner:
+        from .learners import get as get_learner
+        learner = _named(get_learner, args.learner, params_from(args.learner_param, "--learner-param"),
+                         "--learner", "--learner-param")
+    elif args.learner_param:
+        raise ConfigError("--learner-param: only with --learner")
+    cert = Certificate.load(args.certificate)
+    for path in write_report(cert, out, learner=learner, replay=not args.no_replay, limit=limit,
+                             n_jobs=args.jobs).values():
+        print(f"wrote {path}")
+    return EXIT_PASS
+
+
+COMMANDS.append(_add_report)
+
+
+def _add_landscape(sub):
+    p = sub.add_parser("landscape", help="regret against a switching budget S for budgeted learners",
+                       description="Sweep the switching budget S over a grid; each budgeted learner plays the "
+                                   "lower-bound adversaries built for S. Prints fitted slopes and the knee; writes "
+                                   "landscape.png, landscape-cost.png and landscape-<feedback>.json.")
+    p.add_argument("--demo", action="store_true",
+                   help="the bundled study: experts and bandits, T=10000, n=4, both block-random variants")
+    p.add_argument("--feedback", choices=["full", "bandit", "both"], default=None,
+                   help="which families (default: full, or both with --demo)")
+    p.add_argument("--learners", help="comma-separated families (see harness.landscape.LEARNERS)")
+    p.add_argument("--adversaries", help="comma-separated families (see harness.landscape.ADVERSARIES)")
+    p.add_argument("--horizon", type=int, default=10_000)
+    p.add_argument("--actions", type=int, default=4)
+    p.add_argument("--budgets", help="comma-separated budgets S (default: powers of two from 2 below T/4)")
+    p.add_argument("--replicas", type=int, default=256)
+    p.add_argument("--quantile", type=float, default=0.9, help="which quantile of regret (default 0.9)")
+    p.add_argument("--confidence", type=float, default=0.95, help="of each quantile interval")
+    p.add_argument("--seed", type=int, default=0)
+    p.add_argument("--costs", help="comma-separated switching costs C (default: chosen from the reference rates)")
+    p.add_argument("--no-costs", action="store_true", help="skip the switching-cost mode")
+    p.add_argument("--jobs", type=int, default=1, help="parallel jobs (-1: all cores)")
+    p.add_argument("--out", metavar="DIR", help="output directory (default reports/landscape or "
+                                                "reports/landscape-demo)")
+    p.set_defaults(handler=_cmd_landscape)
+
+
+LANDSCAPE_DEMO = ("demo (invented): a fleet of edge caches picks one of n = 4 eviction policies every second; each "
+                  "policy change flushes the cache, so operators budget S changes per 10000 seconds. How much worse "
+                  "than the best fixed policy can a budgeted learner be forced to do, as S grows?\n")
+
+
+def _number_list(text, option, kind):
+    try:
+        return [kind(x) for x in text.split(",") if x.strip()]
+    except ValueError:
+        raise ConfigError(f"{option} {text!r}: give comma-separated {'integers' if kind is int else 'numbers'}, "
+                          f"e.g. {option} {'2,4,8' if kind is int else '0.1,1,10'}") from None
+
+
+def _cmd_landscape(args) -> int:
+    from .landscape import ADVERSARIES, LEARNERS, figure, format_table, landscape
+    from .report.figures import png_bytes
+
+    if args.jobs == 0:
+        raise ConfigError("--jobs: must be a non-zero integer (-1 = all cores), got 0")
+    if args.costs and args.no_costs:
+        raise ConfigError("--costs: give --costs or --no-costs, not both")
+    feedback = args.feedback or ("both" if args.demo else "full")
+    names = {"learners": args.learners.split(",") if args.learners else None,
+             "adversaries": args.adversaries.split(",") if args.adversaries else None}
+    if args.demo and names["adversaries"] is None:
+        names["adversaries"] = ["block-random", "block-random-aligned", "multiscale-walk"]
+    plans = []
+    for fb in (("full", "bandit") if feedback == "both" else (feedback,)):
+        chosen = {}
+        for key, table in (("learners", LEARNERS), ("adversaries", ADVERSARIES)):
+            given = names[key]
+            if given is None:
+                chosen[key] = None
+                continue
+            given = [x.strip() for x in given if x.strip()]
+            for x in given:
+                if x not in table:
+                    raise ConfigError(f"--{key}: unknown family {x!r}; choose from {', '.join(table)}")
+            # with both feedbacks, each landscape takes the families of its own feedback
+            picked = [x for x in given if feedback != "both" or table[x].feedback == fb]
+            chosen[key] = picked or None
+        plans.append((fb, chosen))
+    budgets = _number_list(args.budgets, "--budgets", int) if args.budgets else None
+    costs = () if args.no_costs else (_number_list(args.costs, "--costs", float) if args.costs else None)
+    results = []
+    for fb, chosen in plans:
+        results.append(landscape(chosen["learners"], chosen["adversaries"], budgets, args.horizon, args.actions,
+                                 args.replicas, args.quantile, args.confidence, args.seed, args.jobs, feedback=fb,
+                                 switching_costs=costs, progress=True))
+    if args.demo:
+        print(LANDSCAPE_DEMO)
+    print(format_table(results), end="")
+    out = args.out or os.path.join("reports", "landscape-demo" if args.demo else "landscape")
+    try:
+        os.makedirs(out, exist_ok=True)
+    except OSError as exc:
+        raise ConfigError(f"--out {out}: cannot create the directory ({exc.strerror}); choose a writable path") from None
+    written = []
+    path = os.path.join(out, "landscape.png")
+    with open(path, "wb") as fh:
+        fh.write(png_bytes(figure(results, "regret")))
+    written.append(path)
+    if any(r.cost_points for r in results):
+        path = os.path.join(out, "landscape-cost.png")
+        with open(path, "wb") as fh:
+            fh.write(png_bytes(figure(results, "cost")))
+        written.append(path)
+    for r in results:
+        written.append(r.save(os.path.join(out, f"landscape-{r.feedback}.json")))
+    for path in written:
+        print(f"wrote {path}")
+    return EXIT_PASS
+
+
+COMMANDS.append(_add_landscape)
 
 
 def _add_baseline(sub):

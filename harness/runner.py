@@ -20,6 +20,7 @@ metric is a running total, so memory does not grow with the horizon.
 from __future__ import annotations
 
 import copy
+import functools
 import math
 import sys
 import time
@@ -339,15 +340,22 @@ def _name(obj) -> str:
     return repr(spec_name) if spec_name else type(obj).__name__
 
 
-def versions() -> dict:
-    """Versions of Python and the packages results depend on."""
+@functools.lru_cache(maxsize=1)
+def _versions() -> tuple:
     import platform
     from importlib import metadata
 
-    out = {"python": platform.python_version()}
+    out = [("python", platform.python_version())]
     for pkg in ("boundbreaker", "numpy", "scipy", "joblib", "numba"):
         try:
-            out[pkg] = metadata.version(pkg)
+            out.append((pkg, metadata.version(pkg)))
         except metadata.PackageNotFoundError:
-            out[pkg] = None
-    return out
+            out.append((pkg, None))
+    return tuple(out)
+
+
+def versions() -> dict:
+    """Versions of Python and the packages results depend on (looked up once per process:
+    the lookup costs milliseconds, and searches call run() thousands of times)."""
+    return dict(_versions())
+

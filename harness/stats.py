@@ -342,9 +342,10 @@ def holm(pvalues, alpha: float) -> np.ndarray:
 
 # -- order statistics: quantile intervals ---------------------------------------------
 
-QUANTILE_METHOD = "distribution-free order-statistic interval"
-QUANTILE_REFERENCE = ("Thompson (1936), Ann. Math. Statist. 7:122-128; David and Nagaraja (2003), Order "
-                      "Statistics, 3rd ed., Section 7.1; as scipy.stats.quantile_test(...).confidence_interval")
+QUANTILE_METHOD = "order-statistic interval (distribution-free, binomial counts)"
+QUANTILE_REFERENCE = ("Thompson (1936), Ann. Math. Statist. 7:122-128; Conover (1999), Practical Nonparametric "
+                      "Statistics, 3rd ed., Section 3.2; David and Nagaraja (2003), Order Statistics, 3rd ed., "
+                      "Section 7.1")
 
 
 @dataclass(frozen=True)
@@ -449,27 +450,30 @@ def quantile_min_replicas(quantile: float, confidence: float = 0.95, alternative
         n += 1
 
 
-def quantile_interval(values, quantile: float, confidence: float = 0.95,
+def quantile_interval(values, q: float, confidence: float = 0.95,
                       alternative: str = "two-sided") -> QuantileInterval:
-    """The sample q-quantile of ``values`` with its order-statistic confidence interval.
+    """The sample q-quantile of i.i.d. ``values`` with its distribution-free confidence interval.
 
     See :func:`order_statistic_ranks` for the construction and
-    :class:`QuantileInterval` for the fields. The ends agree with
-    ``scipy.stats.quantile_test(values, p=quantile).confidence_interval(confidence)``
-    (tests/external/test_quantile_intervals.py).
+    :class:`QuantileInterval` for the fields: the ends are those of
+    ``scipy.stats.quantile_test(values, p=q).confidence_interval(confidence)``
+    (-inf/inf where scipy gives nan), the estimate is
+    ``numpy.quantile(values, q, method="inverted_cdf")``
+    (tests/external/test_quantile_intervals.py, tests/test_landscape_quantiles.py).
     """
     x = np.sort(np.asarray(values, dtype=float).ravel())
     if not x.size:
         raise ConfigError("values: empty; a quantile needs at least one value")
     if not np.all(np.isfinite(x)):
         raise ConfigError("values: must be finite numbers")
+    q = validate.real("q", q, low=0.0, high=1.0, low_open=True, high_open=True)
     n = int(x.size)
-    low_rank, high_rank = order_statistic_ranks(n, quantile, confidence, alternative)
-    rank = quantile_rank(n, quantile)
+    low_rank, high_rank = order_statistic_ranks(n, q, confidence, alternative)
+    rank = quantile_rank(n, q)
     return QuantileInterval(
         estimate=float(x[rank - 1]), low=float(x[low_rank - 1]) if low_rank else -math.inf,
         high=float(x[high_rank - 1]) if high_rank else math.inf, confidence=confidence,
-        method=f"{QUANTILE_METHOD} ({alternative})", reference=QUANTILE_REFERENCE, quantile=quantile, n=n,
+        method=f"{QUANTILE_METHOD} ({alternative})", reference=QUANTILE_REFERENCE, quantile=q, n=n,
         rank=rank, low_rank=low_rank, high_rank=high_rank, alternative=alternative)
 
 

@@ -83,3 +83,12 @@ def drive(learner, table, replicas, seed=0, fast=True):
     view = table.view()
     view.flags.writeable = False
     return learner.play_block(view) if fast else Learner.play_block(learner, view)
+
+
+def run_cli(capsys, *argv):
+    """Run the command line in-process: (exit code, stdout, stderr). Arguments may be paths."""
+    from harness.cli import main
+
+    code = main([str(a) for a in argv])
+    out, err = capsys.readouterr()
+    return code, out, err

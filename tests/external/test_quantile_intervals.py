@@ -113,7 +113,7 @@ def test_the_estimate_is_the_order_statistic_of_rank_ceil_n_q():
 def test_bad_arguments_are_refused_in_one_line():
     for call, field in ((lambda: quantile_interval([], 0.5), "values"),
                         (lambda: quantile_interval([1.0, np.nan], 0.5), "values"),
-                        (lambda: quantile_interval([1.0], 1.0), "quantile"),
+                        (lambda: quantile_interval([1.0], 1.0), "q"),
                         (lambda: quantile_interval([1.0], 0.5, confidence=1.0), "confidence"),
                         (lambda: order_statistic_ranks(0, 0.5), "n"),
                         (lambda: quantile_interval([1.0], 0.5, alternative="both"), "alternative")):
