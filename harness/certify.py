@@ -326,7 +326,20 @@ def certify_campaign(campaign, n_jobs=None, progress=False, checkpoint=None) -> 
                    seed=campaign.seed, n_jobs=campaign.n_jobs if n_jobs is None else n_jobs,
                    switching_cost=campaign.switching_cost, labels=[s["label"] for s in campaign.adversary_specs],
                    progress=progress, checkpoint=checkpoint,
-                   campaign={"name": campaign.name, "path": str(campaign.path), "digest": campaign.digest})
+                   campaign={"name": campaign.name, "path": _portable(campaign.path), "digest": campaign.digest})
+
+
+def _portable(path) -> str:
+    """How a certificate names its campaign file: a bundled demo by its package path (the same on
+    every machine), a user's file as the user gave it."""
+    from .config import demo_path
+
+    try:
+        if Path(path).resolve().parent == demo_path().resolve().parent:
+            return f"harness/demos/{Path(path).name}"
+    except OSError:
+        pass
+    return str(path)
 
 
 def _group_seed(seed: int, adversary_index: int, horizon: int, n_actions: int) -> int:
