@@ -85,7 +85,7 @@ from pathlib import Path
 import numpy as np
 
 from . import jsonfile, stats, validate
-from .certify import _group_seed, _labels, adversary_label, build_from_spec
+from .certify import _group_seed, _labels, adversary_label
 from .config import int_list, n_jobs as config_n_jobs, quantile_list
 from .errors import ConfigError
 from .protocol import Adversary
@@ -706,16 +706,40 @@ def _battery_adversaries(adversaries) -> list:
     return out
 
 
+def rebuild(spec: dict, kind: str, option: str):
+    """The learner or adversary a profile names, rebuilt from its spec: registered names only.
+
+    boundbreaker never imports code named in a file (harness.search.replay's
+    rule, shared with reports): a ``module:Class`` anywhere in the spec is
+    refused, and so is a class recorded under a registered name it does not
+    own (a user's subclass inherits its parent's registry name, and
+    rebuilding by name would silently give the parent). ``option`` says how
+    to give the object instead.
+    """
+    import adversaries
+
+    from .learners import REGISTRY as LEARNERS
+    from .search.replay import _check_file_spec
+
+    registry = LEARNERS if kind == "learner" else adversaries.REGISTRY
+    spec = {k: v for k, v in spec.items() if k != "label"}
+    _check_file_spec(spec, registry, kind, option)
+    cls = registry.cls(spec["name"])
+    owner = f"{cls.__module__}:{cls.__qualname__}"
+    if spec.get("class") not in (None, owner):
+        raise ConfigError(f"{kind}: the file names {spec['class']!r} under the registered name {spec['name']!r}, "
+                          f"which is {owner}; boundbreaker does not import code named in a file: give it "
+                          f"yourself ({option})")
+    try:
+        return registry.get(spec["name"], **(spec.get("params") or {}))
+    except ConfigError as exc:
+        raise ConfigError(f"{kind}: cannot rebuild the file's {kind} ({exc}); give it yourself ({option})") from None
+
+
 def _profile_adversaries(profile, given) -> list:
     if given is None:
-        out = []
-        for i, spec in enumerate(profile.adversaries):
-            try:
-                out.append(build_from_spec(spec, "adversary"))
-            except ConfigError as exc:
-                raise ConfigError(f"profile: adversaries[{i}]: cannot rebuild it ({exc}); pass adversaries=[...] "
-                                  f"or make its module importable") from None
-        return out
+        return [rebuild(spec, "adversary", "pass adversaries=[...] to compare, or compare with the campaign file")
+                for spec in profile.adversaries]
     given = _battery_adversaries(given)
     if len(given) != len(profile.adversaries):
         raise ConfigError(f"adversaries: the profile has {len(profile.adversaries)}, got {len(given)}; give them "
@@ -946,5 +970,5 @@ def _read_cell(source, raw, index, where, adversaries, metrics, levels, top) -> 
                        sequence_seed=c["sequence_seed"], sequence_digest=c["sequence_digest"], metrics=per_metric)
 
 
-__all__ = ["record", "record_campaign", "compare", "check_campaign", "TailProfile", "ProfileCell", "QuantilePoint",
+__all__ = ["record", "record_campaign", "compare", "check_campaign", "rebuild", "TailProfile", "ProfileCell", "QuantilePoint",
            "Comparison", "CellComparison", "QuantileComparison", "PinnedSequence", "sequence_digest", "VERDICTS"]

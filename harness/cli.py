@@ -518,7 +518,7 @@ def _add_compare(sub):
 
 
 def _cmd_compare(args) -> int:
-    from .baseline import TailProfile, check_campaign, compare
+    from .baseline import TailProfile, check_campaign, compare, rebuild
     from .config import load_campaign
     from .learners import get as get_learner
 
@@ -529,30 +529,28 @@ def _cmd_compare(args) -> int:
     if args.out:
         _writable(args.out, "--out")
     profile = TailProfile.load(args.profile)
-    jobs = args.jobs
+    jobs, advs = args.jobs, None
     if args.campaign:
         campaign = load_campaign(args.campaign)
         check_campaign(profile, campaign, args.profile)
-        spec, origin = campaign.learner_spec, f"campaign {args.campaign}"
         jobs = campaign.n_jobs if jobs is None else jobs
-    else:
-        spec, origin = profile.learner, f"profile {args.profile}"
+        advs = campaign.build_adversaries()
     for folder in (os.getcwd(), os.path.dirname(os.path.abspath(args.profile))):
-        if folder not in sys.path:  # module:Class learners next to the profile or in the working folder
+        if folder not in sys.path:  # module:Class learners given with --learner, next to the profile or here
             sys.path.append(folder)
     params = params_from(args.learner_param, "--learner-param")
     if args.learner:
         learner = _named(get_learner, args.learner, params, "--learner", "--learner-param")
-    else:
-        name = spec.get("name") or spec.get("class")
-        try:
-            learner = get_learner(name, **{**(spec.get("params") or {}), **params})
-        except ConfigError as exc:
-            if params:
-                raise ConfigError(f"--learner-param: {exc} (the learner of the {origin})") from None
-            raise ConfigError(f"--learner: the learner of the {origin} cannot be built ({exc}); give --learner "
-                              f"NAME|module:Class") from None
-    result = compare(profile, learner, seed=args.seed, replicas=args.replicas, n_jobs=jobs or 1, progress=True)
+    elif args.campaign:
+        spec = campaign.learner_spec
+        learner = _named(get_learner, spec["name"], {**spec["params"], **params}, "--learner", "--learner-param")
+    else:  # the profile's own learner: registered names only, never code named in the file
+        learner = rebuild(profile.learner, "learner", "--learner NAME|module:Class")
+        if params:
+            learner = _named(get_learner, profile.learner["name"], {**profile.learner["params"], **params},
+                             "--learner", "--learner-param")
+    result = compare(profile, learner, seed=args.seed, replicas=args.replicas, adversaries=advs, n_jobs=jobs or 1,
+                     progress=True)
     print(result.table())
     if args.out:
         print(f"wrote {result.save(args.out)}")

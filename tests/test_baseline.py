@@ -1,6 +1,8 @@
 """Tail profiles: what record stores, how compare replays, profile files, refusals, assert_no_tail_regression."""
 
 import json
+import sys
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -15,6 +17,9 @@ from harness.errors import ConfigError
 from harness.learners import get as get_learner
 from harness.stats import quantile_interval
 from harness.testing import assert_no_tail_regression
+
+sys.path.insert(0, str(Path(__file__).parent))
+from helpers import Fixed  # noqa: E402
 
 R, REF, T = 400, 300, 40
 
@@ -192,6 +197,18 @@ def test_compare_refuses_what_it_cannot_compare(profile):
         compare(profile, object())
     with pytest.raises(ConfigError, match="^replicas: "):
         compare(profile, get_learner("hedge"), replicas=0)
+
+
+def test_adversaries_the_file_names_by_class_are_given_not_imported():
+    """A user's adversary (here the tests' Fixed table, named helpers:Fixed in the file) is never imported
+    from the profile: compare asks for it, and takes it when given with the recorded spec."""
+    table = np.tile([[0.0, 1.0], [1.0, 0.0]], (10, 1))
+    prof = record(get_learner("hedge"), Fixed(table), 20, 2, replicas=100, seed=0, quantiles=[0.5, 0.9])
+    with pytest.raises(ConfigError, match="^adversary: the file names 'helpers:Fixed', not a registered adversary"):
+        compare(prof, get_learner("hedge"))
+    assert compare(prof, get_learner("hedge"), adversaries=[Fixed(table)]).tests == 4
+    with pytest.raises(ConfigError, match=r"^adversaries\[0\]: battery mismatch"):
+        compare(prof, get_learner("hedge"), adversaries=[Fixed(1 - table)])
 
 
 def test_a_shared_sequence_that_changed_is_refused(profile):

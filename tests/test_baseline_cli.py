@@ -120,7 +120,7 @@ def test_bad_input_exits_2_in_one_line(recorded, capsys, tmp_path):
         (["compare", profile, "--replicas", "0"], "--replicas: must be at least 1"),
         (["compare", profile, "--learner", "hedgehog"], "--learner: learner: unknown name 'hedgehog'"),
         (["compare", profile, "--learner-param", "speed=3"], "--learner-param: learner 'hedge': unknown parameter "
-                                                              "'speed'; its parameters are: eta (the learner of the"),
+                                                              "'speed'; its parameters are: eta"),
         (["compare", profile, "--jobs", "0"], "--jobs: must be a non-zero integer"),
         (["compare", profile, "--out", tmp_path / "missing" / "c.json"], "--out"),
         (["baseline", campaign], "the following arguments are required: --out"),
@@ -144,3 +144,21 @@ def test_a_users_learner_next_to_the_profile_is_found(recorded, capsys, tmp_path
     assert code == 0, err
     assert "verdict: UNCHANGED" in out
     assert json.loads((tmp_path / "c.json").read_text())["learner"]["class"] == "fleet_learners:Candidate"
+
+
+def test_a_profile_never_makes_compare_import_code(recorded, capsys, tmp_path):
+    """A profile recorded from a user's class names it in the file; compare does not import it (as replay and
+    reports do not): without --learner it refuses in one line, and a subclass recorded under its parent's
+    registered name is not silently replaced by the parent."""
+    campaign, profile = recorded
+    (tmp_path / "fleet_user.py").write_text(
+        "from harness.learners.experts import Hedge\n\n\nclass Mine(Hedge):\n    pass\n")
+    user = tmp_path / "user.toml"
+    user.write_text(campaign.read_text().replace('name = "hedge"', 'name = "fleet_user:Mine"'))
+    assert main(["baseline", str(user), "--out", str(tmp_path / "mine.json")]) == 0
+    capsys.readouterr()
+    code, _, err = _cli(capsys, "compare", tmp_path / "mine.json")
+    assert code == 2 and err.count("\n") == 1
+    assert "'fleet_user:Mine' under the registered name 'hedge'" in err and "does not import code named in a file" in err
+    code, out, err = _cli(capsys, "compare", tmp_path / "mine.json", user)  # the campaign names it: allowed
+    assert code == 0, err
