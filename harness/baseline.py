@@ -85,7 +85,7 @@ from pathlib import Path
 import numpy as np
 
 from . import jsonfile, stats, validate
-from .certify import _group_seed, _labels, adversary_label
+from .certify import adversary_label, adversary_labels, group_seed
 from .config import int_list, n_jobs as config_n_jobs, quantile_list
 from .errors import ConfigError
 from .protocol import Adversary
@@ -250,7 +250,7 @@ def record(learner, adversaries, horizons, n_actions, replicas=4000, seed=0, *, 
     started = time.perf_counter()
     _check_learner(learner)
     adversaries = _battery_adversaries(adversaries)
-    labels = _labels(labels, adversaries)
+    labels = adversary_labels(labels, adversaries)
     horizons = int_list("horizons", horizons, minimum=1)
     n_actions = int_list("n_actions", n_actions, minimum=2)
     replicas = validate.positive_int("replicas", replicas)
@@ -281,7 +281,7 @@ def record(learner, adversaries, horizons, n_actions, replicas=4000, seed=0, *, 
     for a, adversary in enumerate(adversaries):
         for T in horizons:
             for n in n_actions:
-                cell_seed = _group_seed(seed, a, T, n)
+                cell_seed = group_seed(seed, a, T, n)
                 plans.append(_Plan(a, labels[a], adversary, T, n, cell_seed,
                                    cell_seed if _shared(adversary) else None))
     outcomes = _play(learner, plans, replicas + reference_replicas, n_jobs, chunk, progress)
@@ -494,7 +494,7 @@ def compare(profile, learner, seed=None, *, replicas=None, confidence=None, powe
                               f"{'only in the profile' if cell.shared_sequence else 'only now'}; re-record the "
                               f"profile")
         plan = _Plan(cell.adversary_index, cell.adversary_label, adv, cell.horizon, cell.n_actions,
-                     _group_seed(seed, cell.adversary_index, cell.horizon, cell.n_actions), cell.sequence_seed)
+                     group_seed(seed, cell.adversary_index, cell.horizon, cell.n_actions), cell.sequence_seed)
         if cell.sequence_digest is not None and _plan_digest(plan) != cell.sequence_digest:
             raise ConfigError(f"profile: cell {cell.index} ({cell.where}): the shared sequence drawn from "
                               f"sequence_seed {cell.sequence_seed} is not the recorded one (the adversary or numpy "
@@ -707,33 +707,14 @@ def _battery_adversaries(adversaries) -> list:
 
 
 def rebuild(spec: dict, kind: str, option: str):
-    """The learner or adversary a profile names, rebuilt from its spec: registered names only.
-
-    boundbreaker never imports code named in a file (harness.search.replay's
-    rule, shared with reports): a ``module:Class`` anywhere in the spec is
-    refused, and so is a class recorded under a registered name it does not
-    own (a user's subclass inherits its parent's registry name, and
-    rebuilding by name would silently give the parent). ``option`` says how
-    to give the object instead.
-    """
+    """The learner or adversary a profile names, rebuilt from its spec: registered names only
+    (:meth:`harness.registry.Registry.check_file_spec`); ``option`` says how to give it instead."""
     import adversaries
 
     from .learners import REGISTRY as LEARNERS
-    from .search.replay import _check_file_spec
 
     registry = LEARNERS if kind == "learner" else adversaries.REGISTRY
-    spec = {k: v for k, v in spec.items() if k != "label"}
-    _check_file_spec(spec, registry, kind, option)
-    cls = registry.cls(spec["name"])
-    owner = f"{cls.__module__}:{cls.__qualname__}"
-    if spec.get("class") not in (None, owner):
-        raise ConfigError(f"{kind}: the file names {spec['class']!r} under the registered name {spec['name']!r}, "
-                          f"which is {owner}; boundbreaker does not import code named in a file: give it "
-                          f"yourself ({option})")
-    try:
-        return registry.get(spec["name"], **(spec.get("params") or {}))
-    except ConfigError as exc:
-        raise ConfigError(f"{kind}: cannot rebuild the file's {kind} ({exc}); give it yourself ({option})") from None
+    return registry.from_file_spec({k: v for k, v in spec.items() if k != "label"}, option)
 
 
 def _profile_adversaries(profile, given) -> list:

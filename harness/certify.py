@@ -264,7 +264,7 @@ def certify(learner, claims, adversaries, horizons, n_actions, confidence=0.95, 
     _check_learner(learner)
     claims = _claims(learner, claims)
     adversaries = _adversaries(adversaries)
-    labels = _labels(labels, adversaries)
+    labels = adversary_labels(labels, adversaries)
     horizons = int_list("horizons", horizons, minimum=1)
     n_actions = int_list("n_actions", n_actions, minimum=2)
     confidence = validate.real("confidence", confidence, low=0.0, high=1.0, low_open=True, high_open=True)
@@ -282,7 +282,7 @@ def certify(learner, claims, adversaries, horizons, n_actions, confidence=0.95, 
         for T in horizons:
             for n in n_actions:
                 if applicable:
-                    groups.append(_Group(a, adversary, labels[a], T, n, _group_seed(seed, a, T, n), applicable,
+                    groups.append(_Group(a, adversary, labels[a], T, n, group_seed(seed, a, T, n), applicable,
                                          switching_cost))
     total_cells = sum(len(g.claims) for g in groups)
     if not total_cells:
@@ -342,7 +342,7 @@ def _portable(path) -> str:
     return str(path)
 
 
-def _group_seed(seed: int, adversary_index: int, horizon: int, n_actions: int) -> int:
+def group_seed(seed: int, adversary_index: int, horizon: int, n_actions: int) -> int:
     """The integer seed of group (adversary, T, n); see the module docstring."""
     ss = np.random.SeedSequence(seed, spawn_key=(adversary_index, horizon, n_actions))
     return int(ss.generate_state(1)[0])
@@ -389,7 +389,7 @@ def _adversaries(adversaries) -> list:
     return out
 
 
-def _labels(labels, adversaries) -> list:
+def adversary_labels(labels, adversaries) -> list:
     if labels is None:
         return [adversary_label(a.spec()) for a in adversaries]
     labels = [str(x) for x in labels]

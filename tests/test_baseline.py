@@ -11,7 +11,7 @@ import adversaries
 from harness import run
 from harness.baseline import (PinnedSequence, TailProfile, _checksum, check_campaign, compare, record,
                               record_campaign, record_settings, sequence_digest)
-from harness.certify import _group_seed
+from harness.certify import group_seed
 from harness.config import parse_campaign
 from harness.errors import ConfigError
 from harness.learners import get as get_learner
@@ -48,7 +48,7 @@ def test_quantiles_are_order_statistics_of_the_cells_runs(profile):
     assert profile.quantiles == (0.5, 0.9, 0.95, 0.99)
     for cell in profile.cells:
         adv = battery()[cell.adversary_index]
-        assert cell.seed == _group_seed(11, cell.adversary_index, cell.horizon, cell.n_actions)
+        assert cell.seed == group_seed(11, cell.adversary_index, cell.horizon, cell.n_actions)
         res = run(get_learner("hedge"), adv, cell.horizon, cell.n_actions, replicas=R + REF, seed=cell.seed)
         for name, values in (("regret", res.regret), ("switches", res.switches.astype(float))):
             for point in cell.metrics[name]["quantiles"]:
@@ -140,7 +140,7 @@ def test_compare_replays_the_battery_with_fresh_seeds(profile):
         if cell.shared_sequence:
             adv = PinnedSequence(adv, cell.sequence_seed)
         res = run(get_learner("hedge"), adv, cell.horizon, cell.n_actions, replicas=350,
-                  seed=_group_seed(12, cell.adversary_index, cell.horizon, cell.n_actions))
+                  seed=group_seed(12, cell.adversary_index, cell.horizon, cell.n_actions))
         for q in cell_result.quantiles:
             values = res.regret if q.metric == "regret" else res.switches
             assert q.new_exceedances == int(np.count_nonzero(values > q.value))
