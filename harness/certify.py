@@ -47,10 +47,8 @@ never on ``n_jobs``.
 
 from __future__ import annotations
 
-import hashlib
 import json
 import math
-import os
 import sys
 import time
 from dataclasses import asdict, dataclass, field
@@ -59,7 +57,7 @@ from pathlib import Path
 
 import numpy as np
 
-from . import stats, validate
+from . import jsonfile, stats, validate
 from .claims import Claim, metric_range
 from .config import int_list, n_jobs as config_n_jobs
 from .errors import ConfigError
@@ -224,31 +222,13 @@ class Certificate:
         }
 
     def save(self, path) -> Path:
-        """Write the certificate as JSON; returns the path."""
-        path = Path(path)
-        if path.parent and not path.parent.exists():
-            path.parent.mkdir(parents=True, exist_ok=True)
-        text = json.dumps(self.to_dict(), indent=2, allow_nan=False)
-        tmp = path.with_name(path.name + ".tmp")
-        tmp.write_text(text + "\n", encoding="utf-8")
-        os.replace(tmp, path)  # never a half-written certificate
-        return path
+        """Write the certificate as JSON (atomically); returns the path."""
+        return jsonfile.write(path, json.dumps(self.to_dict(), indent=2, allow_nan=False))
 
     @classmethod
     def load(cls, path) -> "Certificate":
-        path = Path(path)
-        try:
-            text = path.read_text(encoding="utf-8")
-        except FileNotFoundError:
-            raise ConfigError(f"{path}: no such certificate file; give the path of a saved certificate") from None
-        except (OSError, UnicodeDecodeError) as exc:
-            raise ConfigError(f"{path}: cannot read it ({type(exc).__name__}); give a certificate JSON file") from None
-        try:
-            data = json.loads(text)
-        except json.JSONDecodeError as exc:
-            raise ConfigError(f"{path}: not valid JSON (line {exc.lineno}, column {exc.colno}: {exc.msg}); "
-                              f"save certificates with Certificate.save") from None
-        return cls.from_dict(data, source=str(path))
+        data = jsonfile.read(path, "certificate", "save certificates with Certificate.save")
+        return cls.from_dict(data, source=str(Path(path)))
 
     @classmethod
     def from_dict(cls, data, source: str = "certificate") -> "Certificate":
@@ -284,7 +264,7 @@ def certify(learner, claims, adversaries, horizons, n_actions, confidence=0.95, 
     _check_learner(learner)
     claims = _claims(learner, claims)
     adversaries = _adversaries(adversaries)
-    labels = _labels(labels, adversaries)
+    labels = adversary_labels(labels, adversaries)
     horizons = int_list("horizons", horizons, minimum=1)
     n_actions = int_list("n_actions", n_actions, minimum=2)
     confidence = validate.real("confidence", confidence, low=0.0, high=1.0, low_open=True, high_open=True)
@@ -302,7 +282,7 @@ def certify(learner, claims, adversaries, horizons, n_actions, confidence=0.95, 
         for T in horizons:
             for n in n_actions:
                 if applicable:
-                    groups.append(_Group(a, adversary, labels[a], T, n, _group_seed(seed, a, T, n), applicable,
+                    groups.append(_Group(a, adversary, labels[a], T, n, group_seed(seed, a, T, n), applicable,
                                          switching_cost))
     total_cells = sum(len(g.claims) for g in groups)
     if not total_cells:
@@ -346,10 +326,23 @@ def certify_campaign(campaign, n_jobs=None, progress=False, checkpoint=None) -> 
                    seed=campaign.seed, n_jobs=campaign.n_jobs if n_jobs is None else n_jobs,
                    switching_cost=campaign.switching_cost, labels=[s["label"] for s in campaign.adversary_specs],
                    progress=progress, checkpoint=checkpoint,
-                   campaign={"name": campaign.name, "path": str(campaign.path), "digest": campaign.digest})
+                   campaign={"name": campaign.name, "path": _portable(campaign.path), "digest": campaign.digest})
 
 
-def _group_seed(seed: int, adversary_index: int, horizon: int, n_actions: int) -> int:
+def _portable(path) -> str:
+    """How a certificate names its campaign file: a bundled demo by its package path (the same on
+    every machine), a user's file as the user gave it."""
+    from .config import demo_path
+
+    try:
+        if Path(path).resolve().parent == demo_path().resolve().parent:
+            return f"harness/demos/{Path(path).name}"
+    except OSError:
+        pass
+    return str(path)
+
+
+def group_seed(seed: int, adversary_index: int, horizon: int, n_actions: int) -> int:
     """The integer seed of group (adversary, T, n); see the module docstring."""
     ss = np.random.SeedSequence(seed, spawn_key=(adversary_index, horizon, n_actions))
     return int(ss.generate_state(1)[0])
@@ -396,7 +389,7 @@ def _adversaries(adversaries) -> list:
     return out
 
 
-def _labels(labels, adversaries) -> list:
+def adversary_labels(labels, adversaries) -> list:
     if labels is None:
         return [adversary_label(a.spec()) for a in adversaries]
     labels = [str(x) for x in labels]
@@ -425,8 +418,7 @@ def _battery(learner, claims, adversaries, labels, horizons, n_actions, confiden
 
 
 def _digest(data) -> str:
-    text = json.dumps(data, sort_keys=True, separators=(",", ":"), default=str)
-    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+    return jsonfile.digest(data)
 
 
 # -- sampling --------------------------------------------------------------------------
@@ -777,20 +769,7 @@ _REPLAY_KEYS = ("replica", "chunk_index", "chunk_replicas", "row", "value")
 
 
 def _typed(source, key, value, want):
-    options = want if isinstance(want, tuple) else (want,)
-    for t in options:
-        if t is None and value is None:
-            return value
-        if t is float and isinstance(value, (int, float)) and not isinstance(value, bool):
-            return float(value)
-        if t is int and isinstance(value, int) and not isinstance(value, bool):
-            return value
-        if t not in (None, float, int) and isinstance(value, t):
-            return value
-    names = " or ".join("null" if t is None else {float: "number", int: "integer", str: "string", bool: "boolean",
-                                                  dict: "object", list: "list"}[t] for t in options)
-    raise ConfigError(f"{source}: {key}: must be {names}, got {json.dumps(value)[:40]}; the file is not a "
-                      f"certificate boundbreaker wrote, or it was edited")
+    return jsonfile.typed(source, key, value, want, "certificate")
 
 
 def _read_cell(data, source) -> Cell:

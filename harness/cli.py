@@ -477,6 +477,100 @@ def _cmd_landscape(args) -> int:
 COMMANDS.append(_add_landscape)
 
 
+def _add_baseline(sub):
+    p = sub.add_parser("baseline", help="record a learner's tail profile on a campaign's battery (commit it)",
+                       description="Record the quantiles of regret and switches of the campaign's learner on every "
+                                   "cell of its battery, with order-statistic intervals, as a JSON profile meant to "
+                                   "be committed; `boundbreaker compare` tests new versions against it. Settings "
+                                   "come from the campaign's [baseline] section (DEVELOPERS.md).")
+    p.add_argument("campaign", metavar="CAMPAIGN.toml", help="campaign file (see DEVELOPERS.md)")
+    p.add_argument("--out", required=True, metavar="PROFILE.json", help="where to write the profile")
+    p.add_argument("--jobs", type=int, default=None, help="parallel jobs (-1: all cores); overrides the campaign")
+    p.set_defaults(handler=_cmd_baseline)
+
+
+def _cmd_baseline(args) -> int:
+    from .baseline import record_campaign
+    from .config import load_campaign
+
+    _jobs(args.jobs)
+    campaign = load_campaign(args.campaign)
+    _writable(args.out, "--out")
+    profile = record_campaign(campaign, n_jobs=args.jobs, progress=True)
+    print(profile.table())
+    print(f"wrote {profile.save(args.out)}")
+    return EXIT_PASS
+
+
+def _add_compare(sub):
+    p = sub.add_parser("compare", help="test a learner's tails against a recorded profile; exit 1 on a regression",
+                       description="Replay the profile's battery with fresh seeds and test, per cell, metric and "
+                                   "quantile, whether the rate of exceeding the recorded quantile rose (regressed) "
+                                   "or fell (improved), family-wise over all tests. Exit 1 on a regression, 0 "
+                                   "otherwise, 2 on bad input (a campaign whose battery differs from the "
+                                   "profile's included).")
+    p.add_argument("profile", metavar="PROFILE.json", help="a profile written by `boundbreaker baseline`")
+    p.add_argument("campaign", nargs="?", metavar="CAMPAIGN.toml",
+                   help="check that the profile is this campaign's, and compare its learner")
+    p.add_argument("--learner", help="registry name or module:Class (default: the campaign's, else the profile's)")
+    p.add_argument("--learner-param", action="append", metavar="KEY=VALUE",
+                   help="learner parameter (repeatable); without --learner, changes the default learner's")
+    p.add_argument("--seed", type=int, default=None, help="root seed of the new replicas (default: the profile's + 1)")
+    p.add_argument("--replicas", type=int, default=None,
+                   help="new replicas per cell (default: the profile's reference replicas)")
+    p.add_argument("--jobs", type=int, default=None, help="parallel jobs (-1: all cores)")
+    p.add_argument("--out", metavar="FILE", help="also write the comparison as JSON")
+    p.set_defaults(handler=_cmd_compare)
+
+
+def _cmd_compare(args) -> int:
+    from .baseline import TailProfile, check_campaign, compare, rebuild
+    from .config import load_campaign
+    from .learners import get as get_learner
+
+    _jobs(args.jobs)
+    for option, value, low in (("--seed", args.seed, 0), ("--replicas", args.replicas, 1)):
+        if value is not None and value < low:
+            raise ConfigError(f"{option}: must be at least {low}, got {value}")
+    if args.out:
+        _writable(args.out, "--out")
+    profile = TailProfile.load(args.profile)
+    jobs, advs = args.jobs, None
+    if args.campaign:
+        campaign = load_campaign(args.campaign)
+        check_campaign(profile, campaign, args.profile)
+        jobs = campaign.n_jobs if jobs is None else jobs
+        advs = campaign.build_adversaries()
+    for folder in (os.getcwd(), os.path.dirname(os.path.abspath(args.profile))):
+        if folder not in sys.path:  # module:Class learners given with --learner, next to the profile or here
+            sys.path.append(folder)
+    params = params_from(args.learner_param, "--learner-param")
+    if args.learner:
+        learner = _named(get_learner, args.learner, params, "--learner", "--learner-param")
+    elif args.campaign:
+        spec = campaign.learner_spec
+        learner = _named(get_learner, spec["name"], {**spec["params"], **params}, "--learner", "--learner-param")
+    else:  # the profile's own learner: registered names only, never code named in the file
+        learner = rebuild(profile.learner, "learner", "--learner NAME|module:Class")
+        if params:
+            learner = _named(get_learner, profile.learner["name"], {**profile.learner["params"], **params},
+                             "--learner", "--learner-param")
+    result = compare(profile, learner, seed=args.seed, replicas=args.replicas, adversaries=advs, n_jobs=jobs or 1,
+                     progress=True)
+    print(result.table())
+    if args.out:
+        print(f"wrote {result.save(args.out)}")
+    return EXIT_VIOLATION if result.verdict == "regressed" else EXIT_PASS
+
+
+def _jobs(value):
+    if value is not None and value == 0:
+        raise ConfigError("--jobs: must be a non-zero integer (-1 = all cores), got 0")
+
+
+COMMANDS += [_add_baseline, _add_compare]
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="boundbreaker", description="Put online learners under adversarial stress.")
     sub = parser.add_subparsers(dest="command", required=True, parser_class=_Parser)

@@ -32,6 +32,11 @@ baseline, landscape). The schema (DEVELOPERS.md, "Campaign files"):
     max_examples = 200
     replicas = 256
     method = "hypothesis"      # hypothesis | cem
+    [baseline]                 # optional, read by `boundbreaker baseline` and `compare`
+    replicas = 4000            # per cell, for the quantiles and their intervals
+    reference_replicas = 4000  # per cell, a second batch counting exceedances (default: = replicas)
+    quantiles = [0.5, 0.9, 0.95, 0.99, 0.999]
+    power = 0.8                # at which the smallest detectable change is stated
 
 Every error is one line: the file, the key path (``claims[1].bound``), what
 is wrong and the fix. Unknown keys are errors, with the closest known key as
@@ -45,8 +50,6 @@ To add a section or key (another command's settings), add it to
 from __future__ import annotations
 
 import difflib
-import hashlib
-import json
 import math
 import sys
 import tomllib
@@ -55,7 +58,7 @@ from pathlib import Path
 
 import numpy as np
 
-from . import validate
+from . import jsonfile, validate
 from .claims import KINDS, METRICS, SCOPES, Claim, Expression
 from .errors import BoundbreakerError, ConfigError
 
@@ -84,6 +87,7 @@ class Campaign:
     n_actions: tuple
     switching_cost: float
     search: dict = field(default_factory=dict)
+    baseline: dict = field(default_factory=dict)
     digest: str = ""
 
     def build_learner(self):
@@ -107,6 +111,7 @@ class Campaign:
             "grid": {"horizons": list(self.horizons), "n_actions": list(self.n_actions),
                      "switching_cost": self.switching_cost},
             "search": dict(self.search),
+            "baseline": dict(self.baseline),
         }
 
 
@@ -155,9 +160,8 @@ def parse_campaign(data: dict, source: str = "campaign", path=None) -> Campaign:
         confidence=camp["confidence"], max_replicas=camp["max_replicas"], n_jobs=camp["n_jobs"],
         use_learner_claims=camp["use_learner_claims"], learner_spec=learner_spec, claims=tuple(claims),
         adversary_specs=tuple(adversary_specs), horizons=horizons, n_actions=n_actions,
-        switching_cost=grid["switching_cost"], search=dict(top["search"]))
-    text = json.dumps(campaign.canonical(), sort_keys=True, separators=(",", ":"), default=str)
-    return _replace_digest(campaign, hashlib.sha256(text.encode("utf-8")).hexdigest())
+        switching_cost=grid["switching_cost"], search=dict(top["search"]), baseline=_baseline(top["baseline"]))
+    return _replace_digest(campaign, jsonfile.digest(campaign.canonical()))
 
 
 def _replace_digest(campaign, digest):
@@ -234,6 +238,35 @@ def _method(key, value):
     return validate.choice(key, value, SEARCH_METHODS)
 
 
+def _opt_positive(key, value):
+    return None if value is None else validate.positive_int(key, value)
+
+
+def _open_unit(key, value):
+    return validate.real(key, value, low=0.0, high=1.0, low_open=True, high_open=True)
+
+
+def quantile_list(key, values) -> list:
+    """A non-empty list of distinct quantile levels in (0, 1), sorted."""
+    if isinstance(values, (int, float)) and not isinstance(values, bool):
+        values = [values]
+    if not isinstance(values, (list, tuple)) or not values:
+        raise ConfigError(f"{key}: must be a non-empty list of levels in (0, 1), e.g. [0.5, 0.9, 0.99]")
+    out = [_open_unit(f"{key}[{i}]", v) for i, v in enumerate(values)]
+    for v in out:
+        if out.count(v) > 1:
+            raise ConfigError(f"{key}: {v:g} appears twice; list each level once")
+    return sorted(out)
+
+
+def _baseline(section: dict) -> dict:
+    """The [baseline] settings with the reference batch's default (as many as ``replicas``) filled in."""
+    out = dict(section)
+    if out["reference_replicas"] is None:
+        out["reference_replicas"] = out["replicas"]
+    return out
+
+
 def _entries(keys, minimum=0):
     """An array of tables, each checked against ``keys``."""
     def check(key, value, ctx):
@@ -278,6 +311,12 @@ SCHEMA = {
         "max_examples": (_positive, 200),
         "replicas": (_positive, 256),
         "method": (_method, "hypothesis"),
+    }, {}),
+    "baseline": ({
+        "replicas": (_positive, 4000),
+        "reference_replicas": (_opt_positive, None),
+        "quantiles": (quantile_list, [0.5, 0.9, 0.95, 0.99, 0.999]),
+        "power": (_open_unit, 0.8),
     }, {}),
 }
 

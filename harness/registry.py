@@ -11,6 +11,7 @@ from __future__ import annotations
 import difflib
 import importlib
 import inspect
+import re
 
 from .errors import BoundbreakerError, ConfigError
 
@@ -61,6 +62,60 @@ class Registry:
         """Build a registered (or ``module:Class``) object with parameters."""
         cls = self.cls(name)
         return construct(self.kind, name, cls, params)
+
+    def check_file_spec(self, spec: dict, option: str) -> None:
+        """Refuse to rebuild from a file anything that would import code: registered names only.
+
+        Certificates, counterexample files and tail profiles may come from
+        anywhere; a ``module:Class`` in one (at the top or inside a wrapper's
+        or composite's parameters) would make boundbreaker import and call that
+        code, so such objects must be given by the user instead (``option``
+        says how). A class recorded under a registered name it does not own
+        is refused too: a user's subclass inherits its parent's registry
+        name, and rebuilding by name would silently give the parent.
+        """
+        kind = self.kind
+
+        def refuse(what, where=""):
+            at = f" at {where}" if where else ""
+            return ConfigError(f"{kind}: the file names {what!r}{at}, which is not a registered name; "
+                               f"boundbreaker does not import code named in a file: give it yourself ({option})")
+
+        def walk(value, where):
+            if isinstance(value, dict):
+                if "class" in value and value.get("name") not in self._entries:
+                    raise refuse(value.get("class"), where)
+                for k, v in value.items():
+                    walk(v, f"{where}.{k}")
+            elif isinstance(value, (list, tuple)):
+                for i, v in enumerate(value):
+                    walk(v, f"{where}[{i}]")
+            elif isinstance(value, str) and _IMPORT_PATH.match(value):
+                raise refuse(value, where)
+
+        name = spec.get("name")
+        if name not in self._entries:
+            raise ConfigError(f"{kind}: the file names {name or spec.get('class')!r}, not a registered {kind}; "
+                              f"boundbreaker does not import code named in a file: give it yourself ({option})")
+        cls = self._entries[name][0]
+        owner = f"{cls.__module__}:{cls.__qualname__}"
+        if spec.get("class") not in (None, owner):
+            raise ConfigError(f"{kind}: the file names {spec['class']!r} under the registered name {name!r}, "
+                              f"which is {owner}; boundbreaker does not import code named in a file: give it "
+                              f"yourself ({option})")
+        walk(spec.get("params") or {}, "params")
+
+    def from_file_spec(self, spec: dict, option: str):
+        """Rebuild what a file's spec names, after :meth:`check_file_spec`."""
+        self.check_file_spec(spec, option)
+        try:
+            return self.get(spec["name"], **(spec.get("params") or {}))
+        except ConfigError as exc:
+            raise ConfigError(f"{self.kind}: cannot rebuild the file's {self.kind} ({exc}); give it yourself "
+                              f"({option})") from None
+
+
+_IMPORT_PATH = re.compile(r"^[A-Za-z_][\w.]*:[A-Za-z_][\w.]*$")
 
 
 def _signature(cls) -> inspect.Signature:

@@ -315,42 +315,310 @@ def fixed_sample_size(threshold: float, rate: float, confidence: float = 0.95, p
     return int(ns[np.argmax(powers(ns) >= power)])
 
 
-# -- quantiles -----------------------------------------------------------------------
+def holm(pvalues, alpha: float) -> np.ndarray:
+    """Holm's step-down rejections at family-wise level ``alpha``: sort the
+    p-values, reject the i-th smallest (i = 1..m) while p_(i) <= alpha / (m - i + 1),
+    and stop at the first that is not.
+
+    Controls the family-wise error at ``alpha`` under any dependence, and
+    rejects everything Bonferroni (alpha / m each) rejects (Holm 1979, Scand.
+    J. Statist. 6:65-70). Meant for a family of hypotheses of one direction
+    (the directional caveat in DEVELOPERS.md, "Certification", is about
+    mixing both directions in one family). Returns a boolean array in the
+    input order.
+    """
+    p = np.asarray(pvalues, dtype=float).ravel()
+    alpha = validate.real("alpha", alpha, low=0.0, high=1.0, low_open=True, high_open=True)
+    if p.size and not (np.all(p >= 0) and np.all(p <= 1)):
+        raise ConfigError("pvalues: must lie in [0, 1]")
+    order = np.argsort(p, kind="stable")
+    levels = alpha / (p.size - np.arange(p.size))
+    passed = p[order] <= levels
+    stop = int(np.argmin(passed)) if not passed.all() else p.size
+    out = np.zeros(p.size, dtype=bool)
+    out[order[:stop]] = True
+    return out
+
+
+# -- order statistics: quantile intervals ---------------------------------------------
 
 QUANTILE_METHOD = "order-statistic interval (distribution-free, binomial counts)"
 QUANTILE_REFERENCE = ("Thompson (1936), Ann. Math. Statist. 7:122-128; Conover (1999), Practical Nonparametric "
-                      "Statistics, 3rd ed., Section 3.2")
+                      "Statistics, 3rd ed., Section 3.2; David and Nagaraja (2003), Order Statistics, 3rd ed., "
+                      "Section 7.1")
 
 
-def quantile_interval(values, q: float, confidence: float = 0.95, alternative: str = "two-sided") -> Interval:
-    """Distribution-free confidence interval for the q-quantile from i.i.d. values.
+@dataclass(frozen=True)
+class QuantileInterval(Interval):
+    """A sample quantile with a distribution-free confidence interval from order statistics.
 
-    With X_(1) <= ... <= X_(N) sorted and B ~ Binomial(N, q), the lower end is
-    X_(l) with l the smallest k such that P[B <= k] >= a (a = 1 - confidence,
-    halved when two-sided), and the upper end is X_(u + 1) with u the
-    smallest k such that P[B > k] <= a. Then P[X_(l) > xi_q] < a and
-    P[X_(u+1) < xi_q] <= a for every distribution, continuous or not
-    (Thompson 1936; Conover 1999, Section 3.2). These are the indices
-    ``scipy.stats.quantile_test(...).confidence_interval()`` uses; where
-    there are too few values for an end, it is -inf or +inf (scipy gives
-    nan). ``estimate`` is the sample quantile ``numpy.quantile(values, q,
-    method="inverted_cdf")`` (an order statistic, like the ends).
+    ``estimate`` is the order statistic of rank ``rank`` = ceil(n q) (1-based:
+    the smallest value with at least a share q of the sample at or below it,
+    an observed value, never an interpolation). ``low`` and ``high`` are the
+    order statistics of ranks ``low_rank`` and ``high_rank``; an end the
+    sample cannot provide at this confidence is -inf/inf and its rank None
+    (for a one-sided interval the open side; for too few replicas, see
+    :func:`quantile_min_replicas`).
     """
-    x = np.sort(np.asarray(values, dtype=float).ravel())
-    if x.size == 0 or not np.all(np.isfinite(x)):
-        raise ConfigError("values: give at least one finite value")
-    q = validate.real("q", q, low=0.0, high=1.0, low_open=True, high_open=True)
+
+    quantile: float
+    n: int
+    rank: int
+    low_rank: int | None
+    high_rank: int | None
+    alternative: str
+
+    @property
+    def complete(self) -> bool:
+        """Whether every end the alternative asks for lies inside the sample."""
+        return ((self.low_rank is not None or self.alternative == "less")
+                and (self.high_rank is not None or self.alternative == "greater"))
+
+    def as_dict(self) -> dict:
+        out = super().as_dict()
+        out.update(quantile=self.quantile, n=self.n, rank=self.rank, low_rank=self.low_rank,
+                   high_rank=self.high_rank, alternative=self.alternative)
+        return out
+
+
+def quantile_rank(n: int, quantile: float) -> int:
+    """ceil(n q), the 1-based rank of the sample q-quantile (Hyndman and Fan 1996, definition 1).
+
+    n q is rounded to 9 decimals first, so 4000 * 0.9 (3600.0000000000005 in
+    floating point) gives rank 3600, as the decimal reading intends.
+    """
+    return max(1, math.ceil(round(n * quantile, 9)))
+
+
+def order_statistic_ranks(n: int, quantile: float, confidence: float = 0.95,
+                          alternative: str = "two-sided") -> tuple[int | None, int | None]:
+    r"""Ranks (1-based) of the order statistics bounding the q-quantile x_q at ``confidence``.
+
+    With K ~ Binomial(n, q) and a the error allowed on a side (alpha/2
+    two-sided, alpha one-sided):
+
+    - lower end X_(l), l = the smallest k with P[K <= k] >= a (the binomial
+      quantile), so P[K <= l - 1] < a and P[X_(l) <= x_q] >= P[K >= l] > 1 - a;
+    - upper end X_(u), u - 1 = the smallest k with P[K > k] <= a, so that
+      P[X_(u) >= x_q] >= P[K <= u - 1] >= 1 - a.
+
+    Both inequalities hold for every distribution, continuous or not,
+    because #{X_i <= x_q} ~ Binomial(n, F(x_q)) with F(x_q) >= q and
+    #{X_i < x_q} ~ Binomial(n, F(x_q-)) with F(x_q-) <= q (Thompson 1936;
+    David and Nagaraja 2003, Section 7.1). An end with no such rank in
+    1..n is None. The ranks are found with scipy.stats.binom's ppf and isf,
+    as scipy.stats.quantile_test does, so the two agree exactly, including
+    where a binomial tail equals a to the last bit.
+    """
+    n = validate.positive_int("n", n)
+    quantile = validate.real("quantile", quantile, low=0.0, high=1.0, low_open=True, high_open=True)
     confidence = validate.real("confidence", confidence, low=0.0, high=1.0, low_open=True, high_open=True)
     validate.choice("alternative", alternative, ALTERNATIVES)
-    n = x.size
-    tail = (1.0 - confidence) / (2 if alternative == "two-sided" else 1)
-    dist = _st.binom(n, q)
-    low, high = -math.inf, math.inf
-    if alternative in ("two-sided", "greater"):
-        k = int(dist.ppf(tail)) - 1          # 0-based index of X_(l)
-        low = float(x[k]) if k >= 0 else -math.inf
-    if alternative in ("two-sided", "less"):
-        k = int(dist.isf(tail))               # 0-based index of X_(u+1)
-        high = float(x[k]) if k < n else math.inf
-    return Interval(estimate=float(np.quantile(x, q, method="inverted_cdf")), low=low, high=high,
-                    confidence=confidence, method=f"{QUANTILE_METHOD} ({alternative})", reference=QUANTILE_REFERENCE)
+    a = (1.0 - confidence) / (2 if alternative == "two-sided" else 1)
+    low = high = None
+    if alternative != "less":
+        k = int(_st.binom.ppf(a, n, quantile))
+        low = k if k >= 1 else None
+    if alternative != "greater":
+        k = int(_st.binom.isf(a, n, quantile)) + 1
+        high = k if k <= n else None
+    return low, high
+
+
+def quantile_min_replicas(quantile: float, confidence: float = 0.95, alternative: str = "two-sided") -> int:
+    """The fewest replicas for which :func:`order_statistic_ranks` finds every end it is asked for.
+
+    The extreme ranks need P[K >= n] = q^n <= a (upper end X_(n)) and
+    P[K <= 0] = (1 - q)^n <= a (lower end X_(1)), with a as in
+    :func:`order_statistic_ranks`: 3688 replicas for the 0.999 quantile at
+    confidence 0.95 two-sided.
+    """
+    quantile = validate.real("quantile", quantile, low=0.0, high=1.0, low_open=True, high_open=True)
+    confidence = validate.real("confidence", confidence, low=0.0, high=1.0, low_open=True, high_open=True)
+    validate.choice("alternative", alternative, ALTERNATIVES)
+    a = (1.0 - confidence) / (2 if alternative == "two-sided" else 1)
+    need = []
+    if alternative != "less":
+        need.append(math.log(a) / math.log1p(-quantile))
+    if alternative != "greater":
+        need.append(math.log(a) / math.log(quantile))
+    n = max(1, math.floor(max(need)) - 1)
+    while True:  # settle the rounding of the logarithms on the exact condition
+        low, high = order_statistic_ranks(n, quantile, confidence, alternative)
+        if (low is not None or alternative == "less") and (high is not None or alternative == "greater"):
+            return n
+        n += 1
+
+
+def quantile_interval(values, q: float, confidence: float = 0.95,
+                      alternative: str = "two-sided") -> QuantileInterval:
+    """The sample q-quantile of i.i.d. ``values`` with its distribution-free confidence interval.
+
+    See :func:`order_statistic_ranks` for the construction and
+    :class:`QuantileInterval` for the fields: the ends are those of
+    ``scipy.stats.quantile_test(values, p=q).confidence_interval(confidence)``
+    (-inf/inf where scipy gives nan), the estimate is
+    ``numpy.quantile(values, q, method="inverted_cdf")``
+    (tests/external/test_quantile_intervals.py, tests/test_landscape_quantiles.py).
+    """
+    x = np.sort(np.asarray(values, dtype=float).ravel())
+    if not x.size:
+        raise ConfigError("values: empty; a quantile needs at least one value")
+    if not np.all(np.isfinite(x)):
+        raise ConfigError("values: must be finite numbers")
+    q = validate.real("q", q, low=0.0, high=1.0, low_open=True, high_open=True)
+    n = int(x.size)
+    low_rank, high_rank = order_statistic_ranks(n, q, confidence, alternative)
+    rank = quantile_rank(n, q)
+    return QuantileInterval(
+        estimate=float(x[rank - 1]), low=float(x[low_rank - 1]) if low_rank else -math.inf,
+        high=float(x[high_rank - 1]) if high_rank else math.inf, confidence=confidence,
+        method=f"{QUANTILE_METHOD} ({alternative})", reference=QUANTILE_REFERENCE, quantile=q, n=n,
+        rank=rank, low_rank=low_rank, high_rank=high_rank, alternative=alternative)
+
+
+# -- two-sample exceedance counts -----------------------------------------------------
+
+EXCEEDANCE_METHOD = "Fisher's exact test, one-sided, on exceedance counts"
+EXCEEDANCE_REFERENCE = ("Fisher (1935), J. R. Statist. Soc. 98:39-82; Lehmann and Romano (2005), Testing "
+                        "Statistical Hypotheses, 3rd ed., Section 4.5; as scipy.stats.fisher_exact")
+
+
+@dataclass(frozen=True)
+class ExceedanceTest:
+    """An exact comparison of two exceedance rates (new against base), in the manner of scipy.stats.
+
+    ``alternative="greater"`` asks whether the new rate is higher, ``"less"``
+    whether it is lower. ``estimate`` is new_rate - base_rate; ``pvalue`` the
+    test's p-value; ``statistic`` the new count.
+    """
+
+    estimate: float
+    pvalue: float
+    statistic: int
+    new: int
+    new_n: int
+    base: int
+    base_n: int
+    alternative: str
+    method: str
+    reference: str
+
+    @property
+    def new_rate(self) -> float:
+        return self.new / self.new_n
+
+    @property
+    def base_rate(self) -> float:
+        return self.base / self.base_n
+
+    def as_dict(self) -> dict:
+        return {"estimate": self.estimate, "pvalue": self.pvalue, "statistic": self.statistic, "new": self.new,
+                "new_n": self.new_n, "base": self.base, "base_n": self.base_n, "alternative": self.alternative,
+                "method": self.method, "reference": self.reference}
+
+
+def _counts(new, new_n, base, base_n):
+    new_n = validate.positive_int("new_n", new_n)
+    base_n = validate.positive_int("base_n", base_n)
+    new = validate.nonneg_int("new", new)
+    base = validate.nonneg_int("base", base)
+    if new > new_n:
+        raise ConfigError(f"new: must be at most new_n={new_n}, got {new}")
+    if base > base_n:
+        raise ConfigError(f"base: must be at most base_n={base_n}, got {base}")
+    return new, new_n, base, base_n
+
+
+def _fisher_pvalues(new, new_n, base, base_n, alternative):
+    """One-sided Fisher p-values for new counts ``new`` (an int or an array) against a fixed base count.
+
+    Given the total t = new + base, the new count is hypergeometric: t
+    exceedances among new_n + base_n replicas, new_n of them drawn.
+    """
+    total = np.asarray(new) + base
+    if alternative == "greater":
+        return _st.hypergeom.sf(np.asarray(new) - 1, new_n + base_n, total, new_n)
+    return _st.hypergeom.cdf(new, new_n + base_n, total, new_n)
+
+
+def exceedance_test(new: int, new_n: int, base: int, base_n: int, alternative: str = "greater") -> ExceedanceTest:
+    r"""Exact one-sided test that the new exceedance rate is higher (``"greater"``) or lower (``"less"``).
+
+    ``new`` of ``new_n`` new replicas and ``base`` of ``base_n`` baseline
+    replicas exceed one threshold fixed in advance. Under the null
+    hypothesis the two counts are independent binomials with the same rate;
+    given their total t, the new count is hypergeometric (t successes among
+    new_n + base_n, new_n drawn), free of the unknown rate. The p-value is
+    its upper (``"greater"``) or lower (``"less"``) tail at the observed
+    count: Fisher's exact test, which also holds its level when the new rate
+    is lower (resp. higher) than the base rate, since the conditional law is
+    monotone in the odds ratio (Lehmann and Romano 2005, Section 4.5).
+    Equals ``scipy.stats.fisher_exact([[new, new_n - new], [base, base_n -
+    base]], alternative)``; Boschloo's unconditional test
+    (``scipy.stats.boschloo_exact``) is never less powerful but costs a
+    supremum over the rate for every table.
+    """
+    new, new_n, base, base_n = _counts(new, new_n, base, base_n)
+    if alternative not in ("greater", "less"):
+        raise ConfigError(f"alternative: must be greater or less, got {alternative!r}")
+    p = float(np.clip(_fisher_pvalues(new, new_n, base, base_n, alternative), 0.0, 1.0))
+    return ExceedanceTest(estimate=new / new_n - base / base_n, pvalue=p, statistic=new, new=new, new_n=new_n,
+                          base=base, base_n=base_n, alternative=alternative,
+                          method=f"{EXCEEDANCE_METHOD} ({alternative})", reference=EXCEEDANCE_REFERENCE)
+
+
+def exceedance_critical(new_n: int, base: int, base_n: int, alpha: float, alternative: str = "greater"):
+    """The new counts :func:`exceedance_test` rejects at level ``alpha``, given the base count.
+
+    ``"greater"``: the smallest count c that rejects, and every count above
+    it does too (None if none rejects); ``"less"``: the largest count d that
+    rejects, and every count below it does too (None if none rejects). The
+    p-value is monotone in the new count for a fixed base count: one more
+    exceedance adds one success to the urn, which raises the hypergeometric
+    count by at most one (a coupling), so P[H' >= a + 1] <= P[H >= a] and
+    P[H' <= a + 1] >= P[H <= a]. Bisection finds the boundary.
+    """
+    _, new_n, base, base_n = _counts(0, new_n, base, base_n)
+    alpha = validate.real("alpha", alpha, low=0.0, high=1.0, low_open=True, high_open=True)
+
+    def rejects(count):
+        return float(_fisher_pvalues(count, new_n, base, base_n, alternative)) <= alpha
+
+    if alternative == "greater":
+        if not rejects(new_n):
+            return None
+        lo, hi = -1, new_n          # rejects(hi) holds, rejects(lo) does not (lo = -1 by convention)
+        while hi - lo > 1:
+            mid = (lo + hi) // 2
+            lo, hi = (lo, mid) if rejects(mid) else (mid, hi)
+        return hi
+    if not rejects(0):
+        return None
+    lo, hi = 0, new_n + 1           # rejects(lo) holds, rejects(hi) does not
+    while hi - lo > 1:
+        mid = (lo + hi) // 2
+        lo, hi = (mid, hi) if rejects(mid) else (lo, mid)
+    return lo
+
+
+def exceedance_detectable(base: int, base_n: int, new_n: int, alpha: float, power: float = 0.8,
+                          alternative: str = "greater") -> float | None:
+    """The smallest change the test can detect: a minimum detectable exceedance rate.
+
+    ``"greater"``: the smallest new rate s that :func:`exceedance_test`
+    flags as higher with probability at least ``power``, given the base
+    count; ``"less"``: the largest s it flags as lower with that
+    probability. None when no rate is detected (e.g. no count can be low
+    enough). With the critical count c, P[Binomial(new_n, s) >= c] =
+    I_s(c, new_n - c + 1) (the binomial-beta identity; common practice), so
+    s is a beta quantile.
+    """
+    power = validate.real("power", power, low=0.0, high=1.0, low_open=True, high_open=True)
+    crit = exceedance_critical(new_n, base, base_n, alpha, alternative)
+    if crit is None:
+        return None
+    if alternative == "greater":
+        return 0.0 if crit == 0 else float(_st.beta.ppf(power, crit, new_n - crit + 1))
+    # P[Binomial(new_n, s) <= d] = 1 - I_s(d + 1, new_n - d), decreasing in s
+    return 1.0 if crit == new_n else float(_st.beta.ppf(1.0 - power, crit + 1, new_n - crit))

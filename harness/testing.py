@@ -9,13 +9,21 @@
 
 Runs are seeded (``seed=0`` unless given), so a test gives the same verdict
 on every run and machine.
+
+Tails against a committed profile (``boundbreaker baseline``):
+
+    from harness.testing import assert_no_tail_regression
+
+    def test_tails_did_not_get_worse():
+        assert_no_tail_regression("tests/router-profile.json", MyLearner())
 """
 
 from __future__ import annotations
 
+from .baseline import compare
 from .certify import certify
 
-__all__ = ["assert_claim"]
+__all__ = ["assert_claim", "assert_no_tail_regression"]
 
 _SHOWN = 5  # failing cells spelt out in the message
 
@@ -51,4 +59,30 @@ def assert_claim(learner, claim, adversaries, horizons, n_actions, *, confidence
                      f"max_replicas, restate the claim, or pass allow_inconclusive=True):")
         for c in unsure[:_SHOWN]:
             lines.append(f"  {c.where}: {c.summary()}")
+    raise AssertionError("\n".join(lines))
+
+
+def assert_no_tail_regression(profile_path, learner, *, seed=None, replicas=None, confidence=None, adversaries=None,
+                              n_jobs=1):
+    """Compare ``learner`` with a saved tail profile and raise AssertionError if any tail regressed.
+
+    The message names every regressed cell, metric and quantile with the
+    baseline's and the new exceedance rates and the p-value. Improvements
+    pass. The comparison is seeded (default: the profile's seed + 1), so the
+    verdict is the same on every run; when the learner did not change, a
+    false failure has probability at most 1 - confidence (the profile's,
+    family-wise). Returns the :class:`~harness.baseline.Comparison`. See
+    :func:`harness.baseline.compare` for the arguments.
+    """
+    result = compare(profile_path, learner, seed=seed, replicas=replicas, confidence=confidence,
+                     adversaries=adversaries, n_jobs=n_jobs)
+    bad = result.regressions()
+    if not bad:
+        return result
+    lines = [f"{len(bad)} of {result.tests} tail tests regressed against {profile_path} (confidence "
+             f"{result.confidence:g} family-wise, seed {result.seed}):"]
+    for q in bad[:2 * _SHOWN]:
+        lines.append(f"  {q.where}: {q.summary()}")
+    if len(bad) > 2 * _SHOWN:
+        lines.append(f"  ... and {len(bad) - 2 * _SHOWN} more")
     raise AssertionError("\n".join(lines))

@@ -109,15 +109,13 @@ class Subjects:
 
 def subjects(cert, learner=None, adversaries=None) -> Subjects:
     """The caller's learner and adversaries (a list in battery order), else rebuilt from registered names."""
-    from ..learners import REGISTRY as LEARNERS, get
-    from ..search.replay import _check_file_spec
+    from ..learners import REGISTRY as LEARNERS
     import adversaries as library
 
     problem = None
     if learner is None:
         try:
-            _check_file_spec(cert.learner, LEARNERS, "learner", "boundbreaker report --learner NAME|module:Class")
-            learner = get(cert.learner["name"], **(cert.learner.get("params") or {}))
+            learner = LEARNERS.from_file_spec(cert.learner, "boundbreaker report --learner NAME|module:Class")
         except BoundbreakerError as exc:
             problem = f"the learner was not rebuilt ({exc})"
     given = {}
@@ -134,7 +132,7 @@ def subjects(cert, learner=None, adversaries=None) -> Subjects:
             continue
         spec = {k: spec[k] for k in ("name", "class", "params") if k in spec}
         try:
-            _check_file_spec(spec, library.REGISTRY, "adversary", "pass adversaries= to harness.report.write_report")
+            library.REGISTRY.check_file_spec(spec, "pass adversaries= to harness.report.write_report")
             rebuilt[a] = library.from_spec(spec)
         except BoundbreakerError as exc:
             problems[a] = f"adversary {cert.adversaries[a].get('label', a)!r} was not rebuilt ({exc})"

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import os
-import re
 from dataclasses import dataclass
 
 from ..errors import ConfigError
@@ -97,57 +96,17 @@ def replay(counterexample, learner, replicas: int | None = None, seed: int | Non
                         claim=ce.claim, bound=bound, mean=mean, evidence=j.evidence, counterexample=ce)
 
 
-_IMPORT_PATH = re.compile(r"^[A-Za-z_][\w.]*:[A-Za-z_][\w.]*$")
-
-
-def _check_file_spec(spec: dict, registry, kind: str, option: str) -> None:
-    """Refuse to rebuild from a file anything that would import code: only registered names.
-
-    A counterexample file may come from anywhere; naming ``module:Class`` in it
-    (at the top or inside a wrapper's parameters) would make replay import and
-    call that code. Such objects must be named by the user instead.
-    """
-    def walk(value, where):
-        if isinstance(value, dict):
-            if "class" in value and value.get("name") not in registry.names():
-                raise ConfigError(f"{kind}: the file names {value.get('class')!r} at {where}, which is not a "
-                                  f"registered name; boundbreaker does not import code named in a file: "
-                                  f"give it yourself ({option})")
-            for k, v in value.items():
-                walk(v, f"{where}.{k}")
-        elif isinstance(value, (list, tuple)):
-            for i, v in enumerate(value):
-                walk(v, f"{where}[{i}]")
-        elif isinstance(value, str) and _IMPORT_PATH.match(value):
-            raise ConfigError(f"{kind}: the file names {value!r} at {where}; boundbreaker does not import code "
-                              f"named in a file: give it yourself ({option})")
-
-    name = spec.get("name")
-    if name not in registry.names():
-        shown = name or spec.get("class")
-        raise ConfigError(f"{kind}: the file names {shown!r}, not a registered {kind}; boundbreaker does not "
-                          f"import code named in a file: give it yourself ({option})")
-    walk(spec.get("params") or {}, "params")
-
-
 def learner_from_spec(spec: dict):
-    """Rebuild the learner a counterexample file names: registered names only (see _check_file_spec)."""
-    from ..learners import REGISTRY, get
+    """Rebuild the learner a counterexample file names: registered names only
+    (:meth:`harness.registry.Registry.check_file_spec`)."""
+    from ..learners import REGISTRY
 
-    _check_file_spec(spec, REGISTRY, "learner", "--learner NAME|module:Class, or pass a learner")
-    try:
-        return get(spec["name"], **(spec.get("params") or {}))
-    except ConfigError as exc:
-        raise ConfigError(f"learner: cannot rebuild the file's learner ({exc}); name one explicitly "
-                          f"(--learner NAME|module:Class, or pass a learner)") from None
+    return REGISTRY.from_file_spec(spec, "--learner NAME|module:Class, or pass a learner")
 
 
 def adversary_from_record(record: dict):
-    """Rebuild an adaptive counterexample's adversary: registered names only (see _check_file_spec)."""
+    """Rebuild an adaptive counterexample's adversary: registered names only
+    (:meth:`harness.registry.Registry.check_file_spec`)."""
     import adversaries
 
-    _check_file_spec(record, adversaries.REGISTRY, "adversary", "pass adversary= to replay")
-    try:
-        return adversaries.get(record["name"], **record["params"])
-    except ConfigError as exc:
-        raise ConfigError(f"adversary: cannot rebuild the file's adaptive adversary ({exc})") from None
+    return adversaries.REGISTRY.from_file_spec(record, "pass adversary= to replay")
