@@ -159,12 +159,7 @@ def play_chunk(learner, adversary, horizon: int, n_actions: int, seed: int, inde
     where = f"in chunk {index} (replay: harness.runner.play_chunk(..., seed={seed}, index={index}, replicas={replicas}))"
     name = _name(learner)
     adv_name = _name(adversary)
-    try:
-        adversary.reset(n_actions, horizon, replicas, adversary_rng)
-    except BoundbreakerError:
-        raise
-    except Exception as exc:
-        raise AdversaryFault(f"adversary {adv_name} raised {_exc(exc)} in reset {where}") from exc
+    _ask(adversary.reset, (n_actions, horizon, replicas, adversary_rng), adv_name, f"in reset {where}")
     try:
         learner.reset(n_actions, horizon, replicas, np.random.default_rng(learner_ss))
     except BoundbreakerError:
@@ -188,12 +183,7 @@ def _play_oblivious(learner, adversary, horizon, n_actions, replicas, name, adv_
     best = np.zeros(n_actions if shared else (replicas, n_actions))
     for t0 in range(0, horizon, step):
         t1 = min(horizon, t0 + step)
-        try:
-            losses = adversary.losses(t0, t1)
-        except BoundbreakerError:
-            raise
-        except Exception as exc:
-            raise AdversaryFault(f"adversary {adv_name} raised {_exc(exc)} at rounds {t0}-{t1 - 1} {where}") from exc
+        losses = _ask(adversary.losses, (t0, t1), adv_name, f"at rounds {t0}-{t1 - 1} {where}")
         want = (t1 - t0, n_actions) if shared else (t1 - t0, replicas, n_actions)
         _check_losses(losses, want, adv_name, t0, where)
         try:
@@ -225,12 +215,7 @@ def _play_adaptive(learner, adversary, horizon, n_actions, replicas, name, adv_n
     bandit = learner.feedback == "bandit"
     for t in range(horizon):
         # The adversary commits first: it cannot see this round's draw.
-        try:
-            losses = adversary.respond(t, history)
-        except BoundbreakerError:
-            raise
-        except Exception as exc:
-            raise AdversaryFault(f"adversary {adv_name} raised {_exc(exc)} at round {t} {where}") from exc
+        losses = _ask(adversary.respond, (t, history), adv_name, f"at round {t} {where}")
         _check_losses(losses, (replicas, n_actions), adv_name, t, where, per_round=True)
         try:
             actions = learner.act()
@@ -329,6 +314,16 @@ def _check_losses(losses, want, adv_name, t0, where, per_round=False):
         t = t0 if per_round else t0 + int(bad[0])
         value = losses[tuple(bad)]
         raise AdversaryFault(f"adversary {adv_name} returned loss {value} outside [0, 1] at round {t} {where}")
+
+
+def _ask(method, args, adv_name, when):
+    """Call an adversary; anything it raises becomes one AdversaryFault line naming it and ``when``."""
+    try:
+        return method(*args)
+    except BoundbreakerError:
+        raise
+    except Exception as exc:
+        raise AdversaryFault(f"adversary {adv_name} raised {_exc(exc)} {when}") from exc
 
 
 def _learner_fault(name, t, cause, where) -> LearnerFault:
