@@ -363,3 +363,26 @@ def _table(rows, per_replica):
 
 def _fmt_load(load):
     return "?" if not load else "/".join(f"{x:.2f}" for x in load)
+
+
+def studies() -> int:
+    """Run the test suite's long statistical studies and benchmarks (markers ``slow`` and
+    ``bench``, deselected in CI) and return pytest's exit code.
+
+    They live in the source checkout's ``tests/`` (they are tests, not part of
+    the installed package), so this needs boundbreaker installed from a clone.
+    """
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    from .errors import ConfigError
+
+    tests = Path(__file__).resolve().parent.parent / "tests"
+    if not (tests / "conftest.py").exists():
+        raise ConfigError("--studies: the studies are in the source checkout's tests/ folder, which this "
+                          "installation lacks; install boundbreaker from a clone (pip install -e .)")
+    command = [sys.executable, "-m", "pytest", str(tests), "-m", "slow or bench", "-q", "-p", "no:cacheprovider"]
+    print("running:", " ".join(command), flush=True)
+    return subprocess.call(command, cwd=tests.parent)
+

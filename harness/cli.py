@@ -171,11 +171,17 @@ def _add_bench(sub):
                    help="comma-separated subset of throughput,large,bandwidth,memory,sweep,scaling (default: all)")
     p.add_argument("--quick", action="store_true", help="smaller sizes, for a smoke test")
     p.add_argument("--json", action="store_true")
+    p.add_argument("--studies", action="store_true",
+                   help="instead, run the long statistical studies and benchmarks of the source checkout's "
+                        "test suite (pytest markers slow and bench, which CI skips)")
     p.set_defaults(handler=_cmd_bench)
 
 
 def _cmd_bench(args) -> int:
     from . import bench
+
+    if args.studies:
+        return bench.studies()
 
     sections = tuple(s.strip() for s in args.sections.split(",")) if args.sections else bench.SECTIONS
     report = bench.main(horizon=args.horizon, replicas=args.replicas, n_actions=args.actions,

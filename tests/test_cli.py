@@ -103,3 +103,15 @@ def test_bench_quick_reports_each_learner(capsys):
     report = json.loads(out)
     assert code == 0 and [r["learner"] for r in report["learners"]] == names()
     assert all(r["shared_rps"] > 0 and r["naive_rps"] > 0 for r in report["learners"])
+
+
+def test_bench_studies_runs_the_slow_and_bench_markers(capsys, monkeypatch):
+    """`bench --studies` hands the checkout's tests to pytest with the markers CI skips."""
+    import subprocess
+
+    seen = {}
+    monkeypatch.setattr(subprocess, "call", lambda cmd, cwd=None: seen.update(cmd=cmd, cwd=cwd) or 0)
+    code, out, _ = _cli(capsys, "bench", "--studies")
+    assert code == 0 and "running:" in out
+    assert seen["cmd"][seen["cmd"].index("-m", 3) + 1] == "slow or bench"
+    assert seen["cmd"][3].endswith("tests")
